@@ -46,6 +46,30 @@ impl ColumnScale {
     }
 }
 
+/// How a time column's text is written, so decode can write it back the same way.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+pub enum TimeFormat {
+    /// A plain number (e.g. seconds or minutes), written with this many decimals.
+    Number { decimals: u32 },
+    /// A calendar date `YYYY-MM-DD`.
+    Date,
+    /// A date and time `YYYY-MM-DDTHH:MM[:SS]` (or with a space for `T`).
+    DateTime { t_separator: bool, seconds: bool },
+}
+
+/// A regularly spaced time column: row `i` is at `start + i × step`.
+/// For dates and date-times the unit is seconds since 1970-01-01T00:00:00 (no
+/// time zone is interpreted; the text is written back as it was read).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct TimeAxis {
+    /// Value of the first row.
+    pub start: f64,
+    /// Difference between consecutive rows.
+    pub step: f64,
+    /// How to write the values.
+    pub format: TimeFormat,
+}
+
 /// What the components of a record codeword mean.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct RecordLayout {
