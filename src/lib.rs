@@ -1,6 +1,7 @@
 //! vqforge: vector quantisation with k-means codebooks.
 
 pub mod codebook;
+pub mod encode;
 pub mod error;
 pub mod kmeans;
 pub mod rng;

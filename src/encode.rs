@@ -1,0 +1,436 @@
+//! Exact nearest-codeword search: a k-d tree over the codewords for low
+//! dimensions (colours, short frames), a scan with partial-distance early exit
+//! for higher ones, and batch encoding in fixed parallel chunks.
+//!
+//! Never trains. Distances here are squared Euclidean in `f32`, summed in
+//! component order; every method computes them the same way, so all methods
+//! return the same index, and ties go to the lowest codeword index.
+
+use rayon::prelude::*;
+
+use crate::error::{Error, ErrorKind, Result};
+use crate::vectors::VectorSet;
+
+/// The nearest codeword to a query.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Nearest {
+    /// Codeword index (the lowest one among equally near codewords).
+    pub index: u32,
+    /// Squared Euclidean distance to it, summed over components in `f32`.
+    pub distance_sq: f32,
+}
+
+/// How the encoder searches.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SearchMethod {
+    /// Choose by dimension and size (tree for d ≤ 8 with k ≥ 16, scan otherwise).
+    Auto,
+    /// k-d tree over the codewords.
+    KdTree,
+    /// Every codeword in turn, abandoning one once its partial sum is too large.
+    Scan,
+}
+
+/// Rows per parallel work unit. Fixed, so the split of work (and anything
+/// summed per chunk) never depends on the number of threads.
+pub const CHUNK_ROWS: usize = 4096;
+
+/// Squared distance summed in component order, in `f32`.
+#[inline]
+pub fn distance_sq(a: &[f32], b: &[f32]) -> f32 {
+    let mut s = 0.0f32;
+    for (x, y) in a.iter().zip(b) {
+        let d = x - y;
+        s += d * d;
+    }
+    s
+}
+
+/// The slow, obviously right search: every codeword, lowest index on ties.
+/// Used as the oracle in tests.
+pub fn nearest_linear(codewords: &[f32], dimension: usize, query: &[f32]) -> Nearest {
+    let mut best = Nearest {
+        index: 0,
+        distance_sq: f32::INFINITY,
+    };
+    for (i, c) in codewords.chunks_exact(dimension).enumerate() {
+        let d = distance_sq(c, query);
+        if d < best.distance_sq {
+            best = Nearest {
+                index: i as u32,
+                distance_sq: d,
+            };
+        }
+    }
+    best
+}
+
+/// Scan with partial-distance early exit: stops summing a codeword as soon as
+/// its partial sum exceeds the best so far. Exact, since partial sums of
+/// non-negative terms never decrease.
+#[inline]
+fn nearest_scan(codewords: &[f32], dimension: usize, query: &[f32]) -> Nearest {
+    let mut best = Nearest {
+        index: 0,
+        distance_sq: f32::INFINITY,
+    };
+    'outer: for (i, c) in codewords.chunks_exact(dimension).enumerate() {
+        let mut s = 0.0f32;
+        for (x, y) in c.iter().zip(query) {
+            let d = x - y;
+            s += d * d;
+            if s > best.distance_sq {
+                continue 'outer;
+            }
+        }
+        if s < best.distance_sq {
+            best = Nearest {
+                index: i as u32,
+                distance_sq: s,
+            };
+        }
+    }
+    best
+}
+
+const LEAF_SIZE: usize = 6;
+
+#[derive(Debug, Clone)]
+enum Node {
+    /// Codewords `start..end` of the tree's permuted order.
+    Leaf { start: u32, end: u32 },
+    /// Children hold the points with component `axis` below / at-or-above `value`.
+    Split {
+        axis: u32,
+        value: f32,
+        below: u32,
+        above: u32,
+    },
+}
+
+/// A k-d tree over codewords, built once; queries allocate nothing.
+#[derive(Debug, Clone)]
+pub struct KdTree {
+    dimension: usize,
+    nodes: Vec<Node>,
+    /// Codewords in tree order, flat.
+    points: Vec<f32>,
+    /// Original index of each point in tree order.
+    ids: Vec<u32>,
+}
+
+impl KdTree {
+    /// Builds the tree: split on the component of widest spread at the median.
+    pub fn build(codewords: &[f32], dimension: usize) -> KdTree {
+        let k = codewords.len() / dimension;
+        let mut order: Vec<u32> = (0..k as u32).collect();
+        let mut nodes = Vec::new();
+        Self::build_node(codewords, dimension, &mut order, 0, &mut nodes);
+        let mut points = Vec::with_capacity(codewords.len());
+        for &i in &order {
+            let i = i as usize;
+            points.extend_from_slice(&codewords[i * dimension..(i + 1) * dimension]);
+        }
+        KdTree {
+            dimension,
+            nodes,
+            points,
+            ids: order,
+        }
+    }
+
+    fn build_node(
+        cw: &[f32],
+        d: usize,
+        order: &mut [u32],
+        offset: usize,
+        nodes: &mut Vec<Node>,
+    ) -> u32 {
+        let me = nodes.len() as u32;
+        nodes.push(Node::Leaf {
+            start: offset as u32,
+            end: (offset + order.len()) as u32,
+        });
+        if order.len() <= LEAF_SIZE {
+            return me;
+        }
+        let mut axis = 0;
+        let mut widest = -1.0f32;
+        for a in 0..d {
+            let (mut lo, mut hi) = (f32::INFINITY, f32::NEG_INFINITY);
+            for &i in order.iter() {
+                let v = cw[i as usize * d + a];
+                lo = lo.min(v);
+                hi = hi.max(v);
+            }
+            if hi - lo > widest {
+                widest = hi - lo;
+                axis = a;
+            }
+        }
+        if widest <= 0.0 {
+            return me; // all points equal: keep as one leaf
+        }
+        order.sort_unstable_by(|&x, &y| {
+            cw[x as usize * d + axis]
+                .total_cmp(&cw[y as usize * d + axis])
+                .then(x.cmp(&y))
+        });
+        let mut mid = order.len() / 2;
+        let value = cw[order[mid] as usize * d + axis];
+        // Everything strictly below `value` goes left, so equal values never straddle.
+        while mid > 0 && cw[order[mid - 1] as usize * d + axis] == value {
+            mid -= 1;
+        }
+        if mid == 0 {
+            // The lower half is all equal to the median: split just above it instead.
+            mid = order.len() / 2;
+            while mid < order.len() && cw[order[mid] as usize * d + axis] == value {
+                mid += 1;
+            }
+            if mid == order.len() {
+                return me;
+            }
+        }
+        let value = cw[order[mid] as usize * d + axis];
+        let (lo, hi) = order.split_at_mut(mid);
+        let below = Self::build_node(cw, d, lo, offset, nodes);
+        let above = Self::build_node(cw, d, hi, offset + mid, nodes);
+        nodes[me as usize] = Node::Split {
+            axis: axis as u32,
+            value,
+            below,
+            above,
+        };
+        me
+    }
+
+    /// The nearest codeword to `query` (exact; lowest index on ties).
+    pub fn nearest(&self, query: &[f32]) -> Nearest {
+        let mut best = Nearest {
+            index: u32::MAX,
+            distance_sq: f32::INFINITY,
+        };
+        self.search(0, query, &mut best);
+        best
+    }
+
+    fn search(&self, node: u32, q: &[f32], best: &mut Nearest) {
+        match self.nodes[node as usize] {
+            Node::Leaf { start, end } => {
+                let d = self.dimension;
+                for p in start as usize..end as usize {
+                    let dist = distance_sq(&self.points[p * d..(p + 1) * d], q);
+                    let id = self.ids[p];
+                    if dist < best.distance_sq || (dist == best.distance_sq && id < best.index) {
+                        *best = Nearest {
+                            index: id,
+                            distance_sq: dist,
+                        };
+                    }
+                }
+            }
+            Node::Split {
+                axis,
+                value,
+                below,
+                above,
+            } => {
+                let diff = q[axis as usize] - value;
+                let (near, far) = if diff < 0.0 {
+                    (below, above)
+                } else {
+                    (above, below)
+                };
+                self.search(near, q, best);
+                // Points on the far side are at least diff² away (in the same
+                // f32 arithmetic), so equality must still be visited for ties.
+                if diff * diff <= best.distance_sq {
+                    self.search(far, q, best);
+                }
+            }
+        }
+    }
+}
+
+/// Finds the nearest codeword for every vector. Build once, query many times.
+#[derive(Debug, Clone)]
+pub struct Encoder {
+    dimension: usize,
+    codewords: Vec<f32>,
+    tree: Option<KdTree>,
+}
+
+impl Encoder {
+    /// An encoder over `codewords` (flat, `dimension` per codeword), choosing
+    /// the search method with [`SearchMethod::Auto`].
+    pub fn new(codewords: &[f32], dimension: usize) -> Result<Encoder> {
+        Self::with_method(codewords, dimension, SearchMethod::Auto)
+    }
+
+    /// An encoder with an explicit search method.
+    pub fn with_method(
+        codewords: &[f32],
+        dimension: usize,
+        method: SearchMethod,
+    ) -> Result<Encoder> {
+        if dimension == 0 || codewords.is_empty() || codewords.len() % dimension != 0 {
+            return Err(Error::new(
+                "building encoder",
+                ErrorKind::InvalidParameter(format!(
+                    "{} values do not make whole codewords of dimension {dimension}",
+                    codewords.len()
+                )),
+            ));
+        }
+        if codewords.iter().any(|v| !v.is_finite()) {
+            return Err(Error::new(
+                "building encoder",
+                ErrorKind::InvalidParameter("a codeword holds a non-finite value".into()),
+            ));
+        }
+        let k = codewords.len() / dimension;
+        let use_tree = match method {
+            SearchMethod::KdTree => true,
+            SearchMethod::Scan => false,
+            SearchMethod::Auto => dimension <= 8 && k >= 16,
+        };
+        Ok(Encoder {
+            dimension,
+            codewords: codewords.to_vec(),
+            tree: use_tree.then(|| KdTree::build(codewords, dimension)),
+        })
+    }
+
+    /// Components per vector.
+    pub fn dimension(&self) -> usize {
+        self.dimension
+    }
+
+    /// Number of codewords.
+    pub fn size(&self) -> usize {
+        self.codewords.len() / self.dimension
+    }
+
+    /// The method in use (never `Auto`).
+    pub fn method(&self) -> SearchMethod {
+        if self.tree.is_some() {
+            SearchMethod::KdTree
+        } else {
+            SearchMethod::Scan
+        }
+    }
+
+    /// Nearest codeword of one query of length `dimension`.
+    #[inline]
+    pub fn nearest(&self, query: &[f32]) -> Nearest {
+        match &self.tree {
+            Some(t) => t.nearest(query),
+            None => nearest_scan(&self.codewords, self.dimension, query),
+        }
+    }
+
+    fn check(&self, dimension: usize) -> Result<()> {
+        if dimension != self.dimension {
+            return Err(Error::new(
+                "encoding",
+                ErrorKind::DimensionMismatch {
+                    expected: self.dimension,
+                    found: dimension,
+                },
+            ));
+        }
+        Ok(())
+    }
+
+    /// Indices of the nearest codewords of all vectors.
+    pub fn encode(&self, vectors: &VectorSet) -> Result<Vec<u32>> {
+        let mut out = Vec::new();
+        self.encode_into(vectors, &mut out)?;
+        Ok(out)
+    }
+
+    /// Like [`Encoder::encode`], reusing `out` (cleared first).
+    pub fn encode_into(&self, vectors: &VectorSet, out: &mut Vec<u32>) -> Result<()> {
+        self.check(vectors.dimension())?;
+        self.encode_flat_into(vectors.as_flat(), out);
+        Ok(())
+    }
+
+    /// Encodes flat rows of this encoder's dimension into `out` (cleared first).
+    /// The caller guarantees `flat.len()` is a multiple of the dimension.
+    pub fn encode_flat_into(&self, flat: &[f32], out: &mut Vec<u32>) {
+        let d = self.dimension;
+        out.clear();
+        out.resize(flat.len() / d, 0);
+        out.par_chunks_mut(CHUNK_ROWS)
+            .zip(flat.par_chunks(CHUNK_ROWS * d))
+            .for_each(|(labels, rows)| {
+                for (l, r) in labels.iter_mut().zip(rows.chunks_exact(d)) {
+                    *l = self.nearest(r).index;
+                }
+            });
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::rng::SeededRng;
+
+    fn random(rng: &mut SeededRng, n: usize, grid: Option<f64>) -> Vec<f32> {
+        (0..n)
+            .map(|_| match grid {
+                // coarse grids make many exact ties
+                Some(g) => (rng.unit_f64() * g).floor() as f32,
+                None => rng.normal() as f32,
+            })
+            .collect()
+    }
+
+    #[test]
+    fn tree_and_scan_equal_linear_oracle_including_ties() {
+        let mut rng = SeededRng::new(9);
+        for &(d, k) in &[(1, 5), (2, 40), (3, 256), (4, 17), (8, 100), (16, 64)] {
+            for grid in [None, Some(4.0)] {
+                let cw = random(&mut rng, d * k, grid);
+                let tree = Encoder::with_method(&cw, d, SearchMethod::KdTree).unwrap();
+                let scan = Encoder::with_method(&cw, d, SearchMethod::Scan).unwrap();
+                for _ in 0..2000 {
+                    let q = random(&mut rng, d, grid);
+                    let want = nearest_linear(&cw, d, &q);
+                    assert_eq!(tree.nearest(&q), want, "tree d={d} k={k}");
+                    assert_eq!(scan.nearest(&q), want, "scan d={d} k={k}");
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn duplicate_codewords_resolve_to_lowest_index() {
+        let cw = vec![1.0, 1.0, 0.0, 0.0, 1.0, 1.0, 0.0, 0.0];
+        for m in [SearchMethod::KdTree, SearchMethod::Scan] {
+            let e = Encoder::with_method(&cw, 2, m).unwrap();
+            assert_eq!(e.nearest(&[0.9, 0.9]).index, 0);
+            assert_eq!(e.nearest(&[0.1, 0.0]).index, 1);
+            // equidistant from (0,0) and (1,1): the lower index wins
+            assert_eq!(e.nearest(&[0.5, 0.5]).index, 0);
+        }
+    }
+
+    #[test]
+    fn batch_encode_checks_dimension() {
+        let e = Encoder::new(&[0.0, 1.0], 1).unwrap();
+        let v = VectorSet::new(1, vec![0.2, 0.9, 0.6]).unwrap();
+        assert_eq!(e.encode(&v).unwrap(), vec![0, 1, 1]);
+        let v2 = VectorSet::new(2, vec![0.0, 0.0]).unwrap();
+        assert!(matches!(
+            e.encode(&v2).unwrap_err().kind(),
+            ErrorKind::DimensionMismatch {
+                expected: 1,
+                found: 2
+            }
+        ));
+        assert!(Encoder::new(&[], 3).is_err());
+    }
+}
