@@ -1,17 +1,31 @@
 //! k-means training: seeding, Lloyd iterations, restarts, empty-cluster
-//! repair and convergence. Pure: takes a [`VectorSet`], returns codewords and
+//! repair and convergence. Pure: takes a [`VectorSet`](crate::vectors::VectorSet), returns codewords and
 //! a report. Never opens files or prints.
+//!
+//! Determinism: every restart's seed derives from one master seed; work is
+//! split into fixed chunks of [`CHUNK_ROWS`] vectors whose partial sums (in
+//! `f64`) are reduced in chunk order, so results are bit-identical for any
+//! number of threads.
 
+use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
+
+use crate::encode::{Encoder, CHUNK_ROWS};
+use crate::error::{Error, ErrorKind, Result};
+use crate::rng::{derive_seed, SeededRng};
+use crate::vectors::VectorSet;
 
 /// How the initial codewords are chosen.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 pub enum Seeding {
-    /// Greedy weighted k-means++ (several candidates per step, keep the best).
+    /// Greedy weighted k-means++: at each step draw 2 + ⌊ln k⌋ candidates
+    /// with probability ∝ weight × squared distance, keep the one that lowers
+    /// the total distortion most.
     KMeansPlusPlus,
-    /// LBG splitting: start from the mean, double by perturbing, refine.
+    /// LBG splitting: start from the weighted mean, split the codewords of the
+    /// largest distortion by a small perturbation, refine with Lloyd, repeat.
     Split,
-    /// k distinct input vectors picked uniformly at random.
+    /// k distinct input vectors drawn at random (probability ∝ weight).
     Random,
 }
 
@@ -24,4 +38,897 @@ pub enum StopReason {
     Tolerance,
     /// The iteration cap was reached.
     MaxIterations,
+}
+
+impl StopReason {
+    /// Lowercase name used in reports.
+    pub fn as_str(&self) -> &'static str {
+        match self {
+            StopReason::Converged => "converged",
+            StopReason::Tolerance => "tolerance",
+            StopReason::MaxIterations => "max-iterations",
+        }
+    }
+}
+
+impl Seeding {
+    /// Lowercase name used in reports.
+    pub fn as_str(&self) -> &'static str {
+        match self {
+            Seeding::KMeansPlusPlus => "kmeans++",
+            Seeding::Split => "split",
+            Seeding::Random => "random",
+        }
+    }
+}
+
+/// Training parameters, with documented defaults. Turn into a
+/// [`CheckedTrainConfig`] with [`TrainConfig::check`] before training.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TrainConfig {
+    /// Codewords wanted, k ≥ 1. No default.
+    pub size: usize,
+    /// Default: greedy k-means++.
+    pub seeding: Seeding,
+    /// Independent runs, the lowest distortion kept. Default 3.
+    pub restarts: u32,
+    /// Lloyd iteration cap per run. Default 300.
+    pub max_iterations: u32,
+    /// Stop when (D_prev − D) / D_prev falls below this; 0 runs until no
+    /// assignment changes or the cap. Scale-free. Default 1e-6.
+    pub tolerance: f64,
+    /// Master seed; restart r uses a seed derived from it. Default 1.
+    pub seed: u64,
+}
+
+/// Default master seed, written into every codebook it produces.
+pub const DEFAULT_SEED: u64 = 1;
+
+impl TrainConfig {
+    /// Defaults for `size` codewords.
+    pub fn new(size: usize) -> Self {
+        TrainConfig {
+            size,
+            seeding: Seeding::KMeansPlusPlus,
+            restarts: 3,
+            max_iterations: 300,
+            tolerance: 1e-6,
+            seed: DEFAULT_SEED,
+        }
+    }
+
+    /// Sets the seeding method.
+    pub fn seeding(mut self, s: Seeding) -> Self {
+        self.seeding = s;
+        self
+    }
+
+    /// Sets the number of restarts.
+    pub fn restarts(mut self, r: u32) -> Self {
+        self.restarts = r;
+        self
+    }
+
+    /// Sets the iteration cap.
+    pub fn max_iterations(mut self, m: u32) -> Self {
+        self.max_iterations = m;
+        self
+    }
+
+    /// Sets the relative tolerance.
+    pub fn tolerance(mut self, t: f64) -> Self {
+        self.tolerance = t;
+        self
+    }
+
+    /// Sets the master seed.
+    pub fn seed(mut self, s: u64) -> Self {
+        self.seed = s;
+        self
+    }
+
+    /// Validates the parameters.
+    pub fn check(self) -> Result<CheckedTrainConfig> {
+        let stage = "checking training parameters";
+        if self.size == 0 {
+            return Err(Error::new(stage, ErrorKind::ZeroSize));
+        }
+        if self.restarts == 0 {
+            return Err(Error::new(
+                stage,
+                ErrorKind::InvalidParameter("restarts must be at least 1".into()),
+            ));
+        }
+        if self.max_iterations == 0 {
+            return Err(Error::new(
+                stage,
+                ErrorKind::InvalidParameter("the iteration cap must be at least 1".into()),
+            ));
+        }
+        if !self.tolerance.is_finite() || self.tolerance < 0.0 {
+            return Err(Error::new(
+                stage,
+                ErrorKind::InvalidParameter(format!(
+                    "tolerance {} must be a finite number ≥ 0",
+                    self.tolerance
+                )),
+            ));
+        }
+        Ok(CheckedTrainConfig(self))
+    }
+}
+
+/// Parameters that passed [`TrainConfig::check`].
+#[derive(Debug, Clone, PartialEq)]
+pub struct CheckedTrainConfig(TrainConfig);
+
+impl CheckedTrainConfig {
+    /// The parameters.
+    pub fn get(&self) -> &TrainConfig {
+        &self.0
+    }
+}
+
+/// What happened during training.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TrainReport {
+    /// Codewords asked for.
+    pub requested_size: usize,
+    /// Codewords returned (fewer when the input has fewer distinct vectors).
+    pub size: usize,
+    /// Lloyd iterations of the kept run.
+    pub iterations: u32,
+    /// The rule that stopped the kept run.
+    pub stopped_by: StopReason,
+    /// Total weighted squared error of the result (sum over vectors of
+    /// weight × ‖x − c‖², f64, from explicit differences).
+    pub distortion: f64,
+    /// `distortion` / (total weight × dimension): mean squared error per component.
+    pub mse_per_component: f64,
+    /// Total distortion of every restart, in order.
+    pub restart_distortions: Vec<f64>,
+    /// Index of the kept restart.
+    pub best_restart: u32,
+    /// The master seed.
+    pub seed: u64,
+    /// Seeding method.
+    pub seeding: Seeding,
+    /// Sum of weights of the input vectors.
+    pub total_weight: f64,
+    /// Distinct input vectors.
+    pub distinct_vectors: usize,
+    /// Things the user should know (e.g. fewer distinct vectors than k).
+    pub notices: Vec<String>,
+}
+
+/// A trained codebook's codewords and the report.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Trained {
+    /// `size × dimension` values, codeword after codeword.
+    pub codewords: Vec<f32>,
+    /// Components per codeword.
+    pub dimension: usize,
+    /// What happened.
+    pub report: TrainReport,
+}
+
+/// Progress events, for a progress bar.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum TrainEvent {
+    /// Restart `restart` (0-based) of `of` begins.
+    RestartStarted { restart: u32, of: u32 },
+    /// One Lloyd iteration finished with this total distortion.
+    Iteration {
+        restart: u32,
+        iteration: u32,
+        distortion: f64,
+    },
+}
+
+/// Options of a single Lloyd refinement.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct LloydOptions {
+    /// Iteration cap (≥ 1).
+    pub max_iterations: u32,
+    /// Relative improvement below which to stop (0 = until converged).
+    pub tolerance: f64,
+}
+
+/// Result of a Lloyd refinement: codewords, the nearest-codeword label of
+/// every vector, and the distortion, all three consistent with each other.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LloydResult {
+    /// Final codewords (flat).
+    pub codewords: Vec<f32>,
+    /// Nearest codeword of each vector (lowest index on ties).
+    pub labels: Vec<u32>,
+    /// Σ weight × ‖x − c_label‖², f64 from explicit differences.
+    pub distortion: f64,
+    /// Distortion at each assignment step, first to last (never rises).
+    pub history: Vec<f64>,
+    /// Assignment steps run.
+    pub iterations: u32,
+    /// The rule that stopped it.
+    pub stopped_by: StopReason,
+}
+
+/// Trains a codebook of `config.size` codewords on `vectors`.
+///
+/// ```
+/// use vqforge::kmeans::{train, TrainConfig};
+/// use vqforge::vectors::VectorSet;
+///
+/// // Two obvious groups on a line.
+/// let v = VectorSet::new(1, vec![0.0, 0.2, 0.1, 10.0, 10.2, 10.1]).unwrap();
+/// let t = train(&v, &TrainConfig::new(2).check().unwrap()).unwrap();
+/// let mut c = t.codewords.clone();
+/// c.sort_by(f32::total_cmp);
+/// assert!((c[0] - 0.1).abs() < 1e-6 && (c[1] - 10.1).abs() < 1e-5);
+///
+/// // k = 0 is refused before any work.
+/// assert!(TrainConfig::new(0).check().is_err());
+/// ```
+pub fn train(vectors: &VectorSet, config: &CheckedTrainConfig) -> Result<Trained> {
+    train_observed(vectors, config, &|_| {})
+}
+
+/// [`train`] with a progress callback.
+pub fn train_observed(
+    vectors: &VectorSet,
+    config: &CheckedTrainConfig,
+    observe: &(dyn Fn(TrainEvent) + Sync),
+) -> Result<Trained> {
+    let cfg = config.get();
+    if vectors.is_empty() {
+        return Err(Error::new("training", ErrorKind::EmptyInput));
+    }
+    let dim = vectors.dimension();
+    let unique = positive_weight(&vectors.deduplicated())?;
+    let distinct = unique.len();
+    let total_weight = unique.total_weight();
+    let mut notices = Vec::new();
+
+    if distinct <= cfg.size {
+        if distinct < cfg.size {
+            notices.push(format!(
+                "the input has only {distinct} distinct vectors; the codebook has {distinct} codewords instead of {}",
+                cfg.size
+            ));
+        }
+        return Ok(Trained {
+            codewords: unique.as_flat().to_vec(),
+            dimension: dim,
+            report: TrainReport {
+                requested_size: cfg.size,
+                size: distinct,
+                iterations: 0,
+                stopped_by: StopReason::Converged,
+                distortion: 0.0,
+                mse_per_component: 0.0,
+                restart_distortions: vec![0.0],
+                best_restart: 0,
+                seed: cfg.seed,
+                seeding: cfg.seeding,
+                total_weight,
+                distinct_vectors: distinct,
+                notices,
+            },
+        });
+    }
+
+    let opts = LloydOptions {
+        max_iterations: cfg.max_iterations,
+        tolerance: cfg.tolerance,
+    };
+    let mut best: Option<(u32, LloydResult)> = None;
+    let mut restart_distortions = Vec::new();
+    for r in 0..cfg.restarts {
+        observe(TrainEvent::RestartStarted {
+            restart: r,
+            of: cfg.restarts,
+        });
+        let mut rng = SeededRng::new(derive_seed(cfg.seed, r as u64));
+        let on_iter = |iteration: u32, distortion: f64| {
+            observe(TrainEvent::Iteration {
+                restart: r,
+                iteration,
+                distortion,
+            })
+        };
+        let result = match cfg.seeding {
+            Seeding::KMeansPlusPlus => {
+                let init = seed_kmeans_plus_plus(&unique, cfg.size, &mut rng);
+                lloyd_observed(&unique, &init, &opts, &on_iter)?
+            }
+            Seeding::Random => {
+                let init = seed_random(&unique, cfg.size, &mut rng);
+                lloyd_observed(&unique, &init, &opts, &on_iter)?
+            }
+            Seeding::Split => split_and_refine(&unique, cfg.size, &opts, &mut rng, &on_iter)?,
+        };
+        restart_distortions.push(result.distortion);
+        if best
+            .as_ref()
+            .is_none_or(|(_, b)| result.distortion < b.distortion)
+        {
+            best = Some((r, result));
+        }
+    }
+    let (best_restart, result) = best.expect("at least one restart ran");
+    Ok(Trained {
+        dimension: dim,
+        report: TrainReport {
+            requested_size: cfg.size,
+            size: result.codewords.len() / dim,
+            iterations: result.iterations,
+            stopped_by: result.stopped_by,
+            distortion: result.distortion,
+            mse_per_component: result.distortion / (total_weight * dim as f64),
+            restart_distortions,
+            best_restart,
+            seed: cfg.seed,
+            seeding: cfg.seeding,
+            total_weight,
+            distinct_vectors: distinct,
+            notices,
+        },
+        codewords: result.codewords,
+    })
+}
+
+/// Drops rows of weight 0 (they cannot pull a codeword) and refuses a set
+/// whose weights are all 0.
+fn positive_weight(v: &VectorSet) -> Result<VectorSet> {
+    let Some(w) = v.weights() else {
+        return Ok(v.clone());
+    };
+    if w.iter().all(|&x| x > 0.0) {
+        return Ok(v.clone());
+    }
+    let mut data = Vec::new();
+    let mut weights = Vec::new();
+    for (i, r) in v.rows().enumerate() {
+        if w[i] > 0.0 {
+            data.extend_from_slice(r);
+            weights.push(w[i]);
+        }
+    }
+    if weights.is_empty() {
+        return Err(Error::new("training", ErrorKind::EmptyInput));
+    }
+    VectorSet::new(v.dimension(), data)?.with_weights(weights)
+}
+
+/// Squared distance in f64 from explicit differences: the reported figure.
+#[inline]
+fn exact_sq(a: &[f32], b: &[f32]) -> f64 {
+    a.iter()
+        .zip(b)
+        .map(|(&x, &y)| {
+            let d = x as f64 - y as f64;
+            d * d
+        })
+        .sum()
+}
+
+/// k distinct vectors drawn without replacement with probability ∝ weight
+/// (Efraimidis–Spirakis keys u^(1/w), the k largest win; ties to the lower index).
+pub fn seed_random(vectors: &VectorSet, k: usize, rng: &mut SeededRng) -> Vec<f32> {
+    let mut keys: Vec<(f64, usize)> = (0..vectors.len())
+        .map(|i| {
+            let u = rng.unit_f64().max(f64::MIN_POSITIVE);
+            (u.ln() / vectors.weight(i), i)
+        })
+        .collect();
+    keys.sort_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
+    let mut chosen: Vec<usize> = keys.iter().take(k).map(|&(_, i)| i).collect();
+    chosen.sort_unstable();
+    chosen
+        .iter()
+        .flat_map(|&i| vectors.row(i).iter().copied())
+        .collect()
+}
+
+/// Draws an index with probability ∝ `mass[i]`, given the prefix sums.
+fn draw(prefix: &[f64], rng: &mut SeededRng) -> usize {
+    let total = *prefix.last().expect("non-empty");
+    let target = rng.unit_f64() * total;
+    let i = prefix.partition_point(|&p| p <= target);
+    i.min(prefix.len() - 1)
+}
+
+/// Greedy weighted k-means++ seeding. Needs more distinct vectors than `k`.
+pub fn seed_kmeans_plus_plus(vectors: &VectorSet, k: usize, rng: &mut SeededRng) -> Vec<f32> {
+    let n = vectors.len();
+    let d = vectors.dimension();
+    let candidates = 2 + (k as f64).ln().floor() as usize;
+    let mut centres: Vec<f32> = Vec::with_capacity(k * d);
+
+    let wprefix: Vec<f64> = (0..n)
+        .scan(0.0, |s, i| {
+            *s += vectors.weight(i);
+            Some(*s)
+        })
+        .collect();
+    let first = draw(&wprefix, rng);
+    centres.extend_from_slice(vectors.row(first));
+    // Closest squared distance of each vector to the chosen centres.
+    let mut closest: Vec<f64> = (0..n)
+        .into_par_iter()
+        .with_min_len(CHUNK_ROWS)
+        .map(|i| exact_sq(vectors.row(i), vectors.row(first)))
+        .collect();
+
+    while centres.len() < k * d {
+        let prefix: Vec<f64> = closest
+            .iter()
+            .enumerate()
+            .scan(0.0, |s, (i, &c)| {
+                *s += vectors.weight(i) * c;
+                Some(*s)
+            })
+            .collect();
+        if *prefix.last().unwrap_or(&0.0) <= 0.0 {
+            break; // every vector already sits on a centre
+        }
+        let picks: Vec<usize> = (0..candidates).map(|_| draw(&prefix, rng)).collect();
+        // Potential after adding each candidate, summed in fixed chunks.
+        let potentials: Vec<f64> = picks
+            .iter()
+            .map(|&p| {
+                let cand = vectors.row(p);
+                let partial: Vec<f64> = closest
+                    .par_chunks(CHUNK_ROWS)
+                    .enumerate()
+                    .map(|(c, chunk)| {
+                        let base = c * CHUNK_ROWS;
+                        chunk
+                            .iter()
+                            .enumerate()
+                            .map(|(j, &old)| {
+                                let i = base + j;
+                                vectors.weight(i) * old.min(exact_sq(vectors.row(i), cand))
+                            })
+                            .sum::<f64>()
+                    })
+                    .collect();
+                partial.iter().sum()
+            })
+            .collect();
+        let mut best = 0;
+        for (c, &pot) in potentials.iter().enumerate() {
+            if pot < potentials[best] {
+                best = c;
+            }
+        }
+        let chosen = vectors.row(picks[best]).to_vec();
+        closest
+            .par_chunks_mut(CHUNK_ROWS)
+            .enumerate()
+            .for_each(|(c, chunk)| {
+                let base = c * CHUNK_ROWS;
+                for (j, old) in chunk.iter_mut().enumerate() {
+                    *old = old.min(exact_sq(vectors.row(base + j), &chosen));
+                }
+            });
+        centres.extend_from_slice(&chosen);
+    }
+    centres
+}
+
+/// Per-chunk results of one assignment pass.
+struct Partial {
+    sums: Vec<f64>,
+    weights: Vec<f64>,
+    distortion: f64,
+    changed: u64,
+}
+
+/// Assigns every vector to its nearest codeword (writing `labels`) and
+/// returns per-cluster weighted sums, weights, the distortion and how many
+/// labels changed, reduced in chunk order.
+fn assign(vectors: &VectorSet, codewords: &[f32], labels: &mut [u32]) -> Result<Partial> {
+    let d = vectors.dimension();
+    let k = codewords.len() / d;
+    let encoder = Encoder::new(codewords, d)?;
+    let flat = vectors.as_flat();
+    let weights = vectors.weights();
+    let partials: Vec<Partial> = labels
+        .par_chunks_mut(CHUNK_ROWS)
+        .zip(flat.par_chunks(CHUNK_ROWS * d))
+        .enumerate()
+        .map(|(c, (lab, rows))| {
+            let mut p = Partial {
+                sums: vec![0.0; k * d],
+                weights: vec![0.0; k],
+                distortion: 0.0,
+                changed: 0,
+            };
+            for (j, (l, r)) in lab.iter_mut().zip(rows.chunks_exact(d)).enumerate() {
+                let w = weights.map_or(1.0, |w| w[c * CHUNK_ROWS + j]);
+                let idx = encoder.nearest(r).index;
+                if *l != idx {
+                    p.changed += 1;
+                    *l = idx;
+                }
+                let i = idx as usize;
+                let cw = &codewords[i * d..(i + 1) * d];
+                p.distortion += w * exact_sq(r, cw);
+                p.weights[i] += w;
+                for (s, &x) in p.sums[i * d..(i + 1) * d].iter_mut().zip(r) {
+                    *s += w * x as f64;
+                }
+            }
+            p
+        })
+        .collect();
+    let mut total = Partial {
+        sums: vec![0.0; k * d],
+        weights: vec![0.0; k],
+        distortion: 0.0,
+        changed: 0,
+    };
+    for p in partials {
+        for (a, b) in total.sums.iter_mut().zip(&p.sums) {
+            *a += b;
+        }
+        for (a, b) in total.weights.iter_mut().zip(&p.weights) {
+            *a += b;
+        }
+        total.distortion += p.distortion;
+        total.changed += p.changed;
+    }
+    Ok(total)
+}
+
+/// Moves each codeword to the weighted mean of its vectors, then repairs
+/// empty clusters: each empty codeword (lowest index first) moves onto the
+/// vector with the largest weighted squared error against the updated
+/// codewords, taken only from clusters that keep at least one other member,
+/// ties to the lowest vector index. Returns how many were repaired.
+fn update(vectors: &VectorSet, codewords: &mut [f32], labels: &[u32], p: &Partial) -> usize {
+    let d = vectors.dimension();
+    let k = codewords.len() / d;
+    let mut empty = Vec::new();
+    for i in 0..k {
+        if p.weights[i] > 0.0 {
+            for c in 0..d {
+                codewords[i * d + c] = (p.sums[i * d + c] / p.weights[i]) as f32;
+            }
+        } else {
+            empty.push(i);
+        }
+    }
+    if empty.is_empty() {
+        return 0;
+    }
+    let mut members = vec![0usize; k];
+    for &l in labels {
+        members[l as usize] += 1;
+    }
+    let mut err: Vec<f64> = (0..vectors.len())
+        .map(|i| {
+            let l = labels[i] as usize;
+            vectors.weight(i) * exact_sq(vectors.row(i), &codewords[l * d..(l + 1) * d])
+        })
+        .collect();
+    let mut repaired = 0;
+    for e in empty {
+        let mut pick: Option<usize> = None;
+        for i in 0..vectors.len() {
+            if err[i] > 0.0
+                && members[labels[i] as usize] > 1
+                && pick.is_none_or(|p| err[i] > err[p])
+            {
+                pick = Some(i);
+            }
+        }
+        let Some(i) = pick else { break };
+        codewords[e * d..(e + 1) * d].copy_from_slice(vectors.row(i));
+        members[labels[i] as usize] -= 1;
+        err[i] = 0.0;
+        repaired += 1;
+    }
+    repaired
+}
+
+/// Lloyd iterations from the given initial codewords.
+///
+/// Each step (1) assigns every vector to its nearest codeword, ties to the
+/// lowest index, (2) moves each codeword to the weighted mean of its vectors.
+/// Stops when no assignment changes, when the relative improvement falls
+/// below `tolerance`, or at the cap; unless it converged, one more update and
+/// a final assignment pass make codewords, labels and distortion agree.
+pub fn lloyd(vectors: &VectorSet, initial: &[f32], opts: &LloydOptions) -> Result<LloydResult> {
+    lloyd_observed(vectors, initial, opts, &|_, _| {})
+}
+
+fn lloyd_observed(
+    vectors: &VectorSet,
+    initial: &[f32],
+    opts: &LloydOptions,
+    on_iter: &(dyn Fn(u32, f64) + Sync),
+) -> Result<LloydResult> {
+    let d = vectors.dimension();
+    if initial.is_empty() || initial.len() % d != 0 {
+        return Err(Error::new(
+            "training",
+            ErrorKind::DimensionMismatch {
+                expected: d,
+                found: initial.len(),
+            },
+        ));
+    }
+    if vectors.is_empty() {
+        return Err(Error::new("training", ErrorKind::EmptyInput));
+    }
+    if opts.max_iterations == 0 {
+        return Err(Error::new(
+            "training",
+            ErrorKind::InvalidParameter("the iteration cap must be at least 1".into()),
+        ));
+    }
+    let mut codewords = initial.to_vec();
+    let mut labels = vec![u32::MAX; vectors.len()];
+    let mut history = Vec::new();
+    let mut iterations = 0;
+    let stopped_by;
+    let mut prev: Option<f64> = None;
+    loop {
+        let p = assign(vectors, &codewords, &mut labels)?;
+        iterations += 1;
+        history.push(p.distortion);
+        on_iter(iterations, p.distortion);
+        if p.changed == 0 {
+            stopped_by = StopReason::Converged;
+            break;
+        }
+        let small_gain = prev
+            .is_some_and(|prev: f64| prev <= 0.0 || (prev - p.distortion) / prev < opts.tolerance);
+        update(vectors, &mut codewords, &labels, &p);
+        if small_gain {
+            stopped_by = StopReason::Tolerance;
+            break;
+        }
+        if iterations >= opts.max_iterations {
+            stopped_by = StopReason::MaxIterations;
+            break;
+        }
+        prev = Some(p.distortion);
+    }
+    let distortion = if stopped_by == StopReason::Converged {
+        *history.last().expect("one pass ran")
+    } else {
+        // Codewords moved after the last assignment: assign once more.
+        assign(vectors, &codewords, &mut labels)?.distortion
+    };
+    Ok(LloydResult {
+        codewords,
+        labels,
+        distortion,
+        history,
+        iterations,
+        stopped_by,
+    })
+}
+
+/// LBG: from the weighted mean, repeatedly split the codewords with the
+/// largest cluster distortion (c → c ± δ, δ a small random direction scaled
+/// to the data's spread) and refine with Lloyd, until there are `k`.
+fn split_and_refine(
+    vectors: &VectorSet,
+    k: usize,
+    opts: &LloydOptions,
+    rng: &mut SeededRng,
+    on_iter: &(dyn Fn(u32, f64) + Sync),
+) -> Result<LloydResult> {
+    let d = vectors.dimension();
+    let total = vectors.total_weight();
+    let mut mean = vec![0.0f64; d];
+    for (i, r) in vectors.rows().enumerate() {
+        for (m, &x) in mean.iter_mut().zip(r) {
+            *m += vectors.weight(i) * x as f64;
+        }
+    }
+    let mean: Vec<f64> = mean.iter().map(|m| m / total).collect();
+    let mut spread = vec![0.0f64; d];
+    for (i, r) in vectors.rows().enumerate() {
+        for c in 0..d {
+            let e = r[c] as f64 - mean[c];
+            spread[c] += vectors.weight(i) * e * e;
+        }
+    }
+    let spread: Vec<f64> = spread
+        .iter()
+        .map(|s| (s / total).sqrt().max(f64::MIN_POSITIVE))
+        .collect();
+    let mut codewords: Vec<f32> = mean.iter().map(|&m| m as f32).collect();
+    let mut result = lloyd_observed(vectors, &codewords, opts, on_iter)?;
+    while result.codewords.len() / d < k {
+        let cur = result.codewords.len() / d;
+        let grow = cur.min(k - cur);
+        // Split the clusters with the most distortion first.
+        let mut cluster_err = vec![0.0f64; cur];
+        for (i, r) in vectors.rows().enumerate() {
+            let l = result.labels[i] as usize;
+            cluster_err[l] +=
+                vectors.weight(i) * exact_sq(r, &result.codewords[l * d..(l + 1) * d]);
+        }
+        let mut order: Vec<usize> = (0..cur).collect();
+        order.sort_by(|&a, &b| cluster_err[b].total_cmp(&cluster_err[a]).then(a.cmp(&b)));
+        codewords = result.codewords.clone();
+        for &c in order.iter().take(grow) {
+            let delta: Vec<f64> = (0..d).map(|j| 1e-3 * spread[j] * rng.normal()).collect();
+            let base: Vec<f64> = codewords[c * d..(c + 1) * d]
+                .iter()
+                .map(|&v| v as f64)
+                .collect();
+            for j in 0..d {
+                codewords[c * d + j] = (base[j] + delta[j]) as f32;
+            }
+            codewords.extend(base.iter().zip(&delta).map(|(b, dl)| (b - dl) as f32));
+        }
+        result = lloyd_observed(vectors, &codewords, opts, on_iter)?;
+    }
+    Ok(result)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn gaussian_mixture(seed: u64, n: usize, centres: &[[f32; 2]]) -> VectorSet {
+        let mut rng = SeededRng::new(seed);
+        let mut data = Vec::new();
+        for i in 0..n {
+            let c = centres[i % centres.len()];
+            data.push(c[0] + 0.3 * rng.normal() as f32);
+            data.push(c[1] + 0.3 * rng.normal() as f32);
+        }
+        VectorSet::new(2, data).unwrap()
+    }
+
+    /// Naive Lloyd step, written for clarity: the oracle for `assign` + `update`.
+    fn naive_step(v: &VectorSet, cw: &[f32]) -> (Vec<f32>, f64) {
+        let d = v.dimension();
+        let k = cw.len() / d;
+        let mut sums = vec![0.0f64; k * d];
+        let mut w = vec![0.0f64; k];
+        let mut dist = 0.0;
+        for (i, r) in v.rows().enumerate() {
+            let mut best = (f64::INFINITY, 0);
+            for j in 0..k {
+                // the encoder's f32 distance decides, ties to the lower index
+                let e32 = crate::encode::distance_sq(r, &cw[j * d..(j + 1) * d]) as f64;
+                if e32 < best.0 {
+                    best = (e32, j);
+                }
+            }
+            let j = best.1;
+            dist += v.weight(i) * exact_sq(r, &cw[j * d..(j + 1) * d]);
+            w[j] += v.weight(i);
+            for c in 0..d {
+                sums[j * d + c] += v.weight(i) * r[c] as f64;
+            }
+        }
+        let mut out = cw.to_vec();
+        for j in 0..k {
+            if w[j] > 0.0 {
+                for c in 0..d {
+                    out[j * d + c] = (sums[j * d + c] / w[j]) as f32;
+                }
+            }
+        }
+        (out, dist)
+    }
+
+    #[test]
+    fn one_iteration_matches_naive_step() {
+        let v = gaussian_mixture(3, 5000, &[[0.0, 0.0], [3.0, 0.0], [0.0, 3.0]]);
+        let init = vec![0.5, 0.5, 2.0, 1.0, 1.0, 2.0, -1.0, -1.0];
+        let opts = LloydOptions {
+            max_iterations: 1,
+            tolerance: 0.0,
+        };
+        let r = lloyd(&v, &init, &opts).unwrap();
+        let (want, d0) = naive_step(&v, &init);
+        assert_eq!(r.codewords, want);
+        // chunked summation order differs from the naive loop only by rounding
+        assert!((r.history[0] - d0).abs() <= 1e-12 * d0);
+    }
+
+    #[test]
+    fn distortion_never_rises_and_labels_agree() {
+        let v = gaussian_mixture(5, 4000, &[[0.0, 0.0], [3.0, 0.0], [0.0, 3.0], [3.0, 3.0]]);
+        for seeding in [Seeding::KMeansPlusPlus, Seeding::Random, Seeding::Split] {
+            let cfg = TrainConfig::new(7).seeding(seeding).tolerance(0.0);
+            let mut rng = SeededRng::new(1);
+            let init = seed_random(&v, 7, &mut rng);
+            let r = lloyd(
+                &v,
+                &init,
+                &LloydOptions {
+                    max_iterations: 100,
+                    tolerance: 0.0,
+                },
+            )
+            .unwrap();
+            for w in r.history.windows(2) {
+                assert!(w[1] <= w[0], "{:?}", r.history);
+            }
+            let e = Encoder::new(&r.codewords, 2).unwrap();
+            assert_eq!(e.encode(&v).unwrap(), r.labels);
+            let t = train(&v, &cfg.check().unwrap()).unwrap();
+            assert_eq!(t.report.size, 7);
+            assert!(t.report.mse_per_component > 0.0);
+        }
+    }
+
+    #[test]
+    fn fewer_distinct_vectors_than_k() {
+        let v = VectorSet::new(1, vec![1.0, 2.0, 1.0, 2.0, 3.0]).unwrap();
+        let t = train(&v, &TrainConfig::new(8).check().unwrap()).unwrap();
+        assert_eq!(t.report.size, 3);
+        assert_eq!(t.codewords, vec![1.0, 2.0, 3.0]);
+        assert_eq!(t.report.distortion, 0.0);
+        assert_eq!(t.report.notices.len(), 1);
+    }
+
+    #[test]
+    fn empty_cluster_is_repaired_without_duplicates() {
+        // A codeword far from every vector gets no members on the first pass.
+        let v = VectorSet::new(1, vec![0.0, 1.0, 2.0, 10.0, 11.0, 12.0]).unwrap();
+        let init = vec![1.0, 11.0, 1000.0];
+        let r = lloyd(
+            &v,
+            &init,
+            &LloydOptions {
+                max_iterations: 50,
+                tolerance: 0.0,
+            },
+        )
+        .unwrap();
+        let mut c = r.codewords.clone();
+        c.sort_by(f32::total_cmp);
+        c.dedup();
+        assert_eq!(c.len(), 3);
+        assert!(c.iter().all(|&x| x <= 12.0));
+        assert_eq!(r.stopped_by, StopReason::Converged);
+    }
+
+    #[test]
+    fn same_seed_same_result_for_any_thread_count() {
+        let v = gaussian_mixture(8, 30_000, &[[0.0, 0.0], [3.0, 0.0], [0.0, 3.0]]);
+        let cfg = TrainConfig::new(16).check().unwrap();
+        let run = |threads| {
+            rayon::ThreadPoolBuilder::new()
+                .num_threads(threads)
+                .build()
+                .unwrap()
+                .install(|| train(&v, &cfg).unwrap())
+        };
+        let a = run(1);
+        let b = run(2);
+        let c = run(3);
+        assert_eq!(a, b);
+        assert_eq!(a, c);
+        let other = train(&v, &TrainConfig::new(16).seed(2).check().unwrap()).unwrap();
+        assert_ne!(a.codewords, other.codewords);
+    }
+
+    #[test]
+    fn bad_parameters_are_refused() {
+        assert!(matches!(
+            TrainConfig::new(0).check().unwrap_err().kind(),
+            ErrorKind::ZeroSize
+        ));
+        assert!(TrainConfig::new(2).restarts(0).check().is_err());
+        assert!(TrainConfig::new(2).max_iterations(0).check().is_err());
+        assert!(TrainConfig::new(2).tolerance(f64::NAN).check().is_err());
+        let w = VectorSet::new(1, vec![1.0, 2.0])
+            .unwrap()
+            .with_weights(vec![0.0, 0.0])
+            .unwrap();
+        assert!(train(&w, &TrainConfig::new(1).check().unwrap()).is_err());
+    }
 }
