@@ -6,6 +6,7 @@ pub mod encode;
 pub mod error;
 pub mod format;
 pub mod kmeans;
+pub mod metrics;
 pub mod pack;
 pub mod rng;
 pub mod vectors;
