@@ -4,10 +4,13 @@ pub mod atomic;
 pub mod codebook;
 pub mod encode;
 pub mod error;
+pub mod export;
 pub mod format;
 pub mod kmeans;
+pub mod load;
 pub mod metrics;
 pub mod pack;
+pub mod records;
 pub mod rng;
 pub mod vectors;
 

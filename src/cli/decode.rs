@@ -1,0 +1,62 @@
+//! `vqforge decode`: rebuild CSV records from a stream and its codebook.
+
+use std::io::BufWriter;
+use std::time::Instant;
+
+use anyhow::{Context, Result};
+use serde_json::json;
+
+use vqforge::atomic::AtomicFile;
+use vqforge::format;
+use vqforge::records::decode_to_writer;
+
+use super::args::DecodeArgs;
+use super::output::{print_json, print_pairs, secs};
+use super::usage;
+
+pub fn run(a: DecodeArgs) -> Result<()> {
+    let started = Instant::now();
+    if a.stream == a.out || a.book == a.out {
+        return usage(format!(
+            "--out {} would overwrite an input; choose another file",
+            a.out.display()
+        ));
+    }
+    let book_name = a.book.display().to_string();
+    let stream_name = a.stream.display().to_string();
+    let book = format::read_codebook(&a.book).with_context(|| format!("codebook {book_name}"))?;
+    let (header, indices) =
+        format::read_stream(&a.stream).with_context(|| format!("stream {stream_name}"))?;
+    format::check_stream_matches(&header, &book)
+        .with_context(|| format!("stream {stream_name} with codebook {book_name}"))?;
+    let out_name = a.out.display().to_string();
+    let file = AtomicFile::create(&a.out).with_context(|| format!("writing {out_name}"))?;
+    let mut writer = BufWriter::new(file);
+    let rows = decode_to_writer(&header, &indices, &book, &mut writer)
+        .with_context(|| format!("writing {out_name}"))?;
+    let file = writer
+        .into_inner()
+        .map_err(|e| e.into_error())
+        .with_context(|| format!("writing {out_name}"))?;
+    file.commit()
+        .with_context(|| format!("writing {out_name}"))?;
+    let seconds = started.elapsed().as_secs_f64();
+    if a.json {
+        return print_json(&json!({
+            "size": book.size(),
+            "dimension": book.dimension,
+            "vectors": indices.len(),
+            "rows": rows,
+            "out": out_name,
+            "seconds": seconds,
+        }));
+    }
+    print_pairs(&[
+        ("records", format!("{out_name} ({rows} rows)")),
+        (
+            "from",
+            format!("{} vectors of {stream_name}", indices.len()),
+        ),
+        ("time", secs(seconds)),
+    ])
+}

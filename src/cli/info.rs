@@ -1,0 +1,175 @@
+//! `vqforge info FILE`: what a codebook or stream file holds.
+
+use anyhow::{Context, Result};
+use serde_json::json;
+
+use vqforge::codebook::{Codebook, Meaning, Scaling, TimeAxis};
+use vqforge::format::{self, FileKind, StreamHeader};
+use vqforge::load::format_time;
+use vqforge::metrics;
+
+use super::args::InfoArgs;
+use super::output::{num, print_json, print_pairs};
+
+pub fn run(a: InfoArgs) -> Result<()> {
+    let name = a.file.display().to_string();
+    let bytes = std::fs::read(&a.file).with_context(|| format!("reading {name}"))?;
+    match format::detect_kind(&bytes) {
+        Some(FileKind::Codebook) => {
+            let book = format::codebook_from_bytes(&bytes).with_context(|| name.clone())?;
+            codebook(&book, bytes.len(), a.json)
+        }
+        Some(FileKind::Stream) => {
+            let (header, indices) =
+                format::stream_from_bytes(&bytes).with_context(|| name.clone())?;
+            stream(&header, &indices, bytes.len(), a.json)
+        }
+        None => anyhow::bail!(
+            "{name}: not a vqforge codebook or stream file (it does not start with either file's magic tag)"
+        ),
+    }
+}
+
+pub fn scaling_name(s: Scaling) -> &'static str {
+    match s {
+        Scaling::None => "none",
+        Scaling::ZScore => "zscore",
+        Scaling::MinMax => "minmax",
+    }
+}
+
+fn codebook(book: &Codebook, file_bytes: usize, as_json: bool) -> Result<()> {
+    let fp = format::fingerprint(book)?;
+    let t = &book.training;
+    let layout = match &book.meaning {
+        Meaning::Records(l) => Some(l),
+        Meaning::Plain => None,
+    };
+    if as_json {
+        let meaning = match layout {
+            Some(l) => json!({
+                "kind": "records",
+                "columns": l.columns,
+                "frame": l.frame,
+                "scaling": scaling_name(l.scaling),
+                "scales": l.scales.iter().map(|s| json!({"offset": s.offset, "factor": s.factor})).collect::<Vec<_>>(),
+                "time_column": l.time_column,
+            }),
+            None => json!({"kind": "plain"}),
+        };
+        return print_json(&json!({
+            "file": "codebook",
+            "file_bytes": file_bytes,
+            "fingerprint": format!("{fp:08x}"),
+            "size": book.size(),
+            "dimension": book.dimension,
+            "bits_per_index": book.bits_per_index(),
+            "meaning": meaning,
+            "training": {
+                "seed": t.seed,
+                "restarts": t.restarts,
+                "seeding": t.seeding.as_str(),
+                "iterations": t.iterations,
+                "stopped_by": t.stopped_by.as_str(),
+                "vectors": t.vectors,
+                "distinct_vectors": t.distinct_vectors,
+                "mse_scaled": t.mse_scaled,
+            },
+        }));
+    }
+    let mut pairs = vec![
+        ("file", "vqforge codebook".to_string()),
+        ("bytes", file_bytes.to_string()),
+        ("fingerprint", format!("{fp:08x}")),
+        ("codewords", book.size().to_string()),
+        ("dimension", book.dimension.to_string()),
+        ("bits per index", book.bits_per_index().to_string()),
+    ];
+    if let Some(l) = layout {
+        pairs.push(("columns", l.columns.join(", ")));
+        pairs.push(("frame", format!("{} row(s) per vector", l.frame)));
+        pairs.push(("scaling", scaling_name(l.scaling).to_string()));
+        pairs.push((
+            "time column",
+            l.time_column.clone().unwrap_or_else(|| "none".into()),
+        ));
+    }
+    pairs.push((
+        "trained",
+        format!(
+            "seed {}, {} restart(s), {}, {} iteration(s), stopped: {}",
+            t.seed,
+            t.restarts,
+            t.seeding.as_str(),
+            t.iterations,
+            t.stopped_by.as_str()
+        ),
+    ));
+    pairs.push((
+        "training vectors",
+        format!("{} ({} distinct)", t.vectors, t.distinct_vectors),
+    ));
+    pairs.push(("mse (scaled)", num(t.mse_scaled)));
+    print_pairs(&pairs)
+}
+
+fn time_text(axis: &TimeAxis) -> String {
+    format!(
+        "starts {}, step {}",
+        format_time(axis.start, axis.format),
+        num(axis.step)
+    )
+}
+
+fn stream(header: &StreamHeader, indices: &[u32], file_bytes: usize, as_json: bool) -> Result<()> {
+    let counts = metrics::index_counts(indices, header.size as usize);
+    let entropy = metrics::index_entropy_bits(&counts);
+    let used = counts.iter().filter(|&&c| c > 0).count();
+    if as_json {
+        let records = header.records.as_ref().map(|r| {
+            json!({
+                "rows": r.rows,
+                "time": r.time.as_ref().map(|t| json!({
+                    "start": format_time(t.start, t.format),
+                    "step": t.step,
+                })),
+            })
+        });
+        return print_json(&json!({
+            "file": "stream",
+            "file_bytes": file_bytes,
+            "size": header.size,
+            "dimension": header.dimension,
+            "vectors": header.vectors,
+            "bits_per_index": header.bits,
+            "index_entropy_bits": entropy,
+            "codewords_used": used,
+            "codebook_fingerprint": format!("{:08x}", header.codebook_fingerprint),
+            "records": records,
+        }));
+    }
+    let mut pairs = vec![
+        ("file", "vqforge index stream".to_string()),
+        ("bytes", file_bytes.to_string()),
+        ("vectors", header.vectors.to_string()),
+        ("codebook size", header.size.to_string()),
+        ("dimension", header.dimension.to_string()),
+        ("bits per index", header.bits.to_string()),
+        ("index entropy", format!("{} bits", num(entropy))),
+        ("codewords used", format!("{used} of {}", header.size)),
+        (
+            "made with codebook",
+            format!("{:08x}", header.codebook_fingerprint),
+        ),
+    ];
+    if let Some(r) = &header.records {
+        pairs.push(("rows", r.rows.to_string()));
+        pairs.push((
+            "time",
+            r.time
+                .as_ref()
+                .map_or_else(|| "row numbers".to_string(), time_text),
+        ));
+    }
+    print_pairs(&pairs)
+}

@@ -1,0 +1,105 @@
+//! Argument structs (what the user typed) and their conversion into checked
+//! library configs; one small function per subcommand.
+
+mod args;
+mod decode;
+mod demo;
+mod encode;
+mod info;
+mod output;
+mod progress;
+mod train;
+
+use std::process::ExitCode;
+
+use anyhow::Result;
+use clap::Parser;
+
+pub use args::{Cli, Command};
+
+/// A usage error found by the command line itself (exit code 2).
+#[derive(Debug)]
+pub struct UsageError(pub String);
+
+impl std::fmt::Display for UsageError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "{}", self.0)
+    }
+}
+
+impl std::error::Error for UsageError {}
+
+/// Returns a usage error (exit code 2) with this message.
+pub fn usage<T>(message: impl Into<String>) -> Result<T> {
+    Err(UsageError(message.into()).into())
+}
+
+/// Parses the arguments and runs the chosen command.
+pub fn run() -> Result<ExitCode> {
+    let cli = match Cli::try_parse() {
+        Ok(c) => c,
+        Err(e) => {
+            use clap::error::ErrorKind as K;
+            if matches!(
+                e.kind(),
+                K::DisplayHelp | K::DisplayVersion | K::DisplayHelpOnMissingArgumentOrSubcommand
+            ) {
+                e.print()?;
+                return Ok(if e.kind() == K::DisplayHelpOnMissingArgumentOrSubcommand {
+                    ExitCode::from(2)
+                } else {
+                    ExitCode::SUCCESS
+                });
+            }
+            let text = e.to_string();
+            let first = text
+                .lines()
+                .find(|l| !l.trim().is_empty())
+                .unwrap_or("invalid arguments")
+                .trim_start_matches("error: ");
+            return usage(format!("{first} (see 'vqforge --help')"));
+        }
+    };
+    match cli.command {
+        Command::Train(a) => train::run(a),
+        Command::Encode(a) => encode::run(a),
+        Command::Decode(a) => decode::run(a),
+        Command::Info(a) => info::run(a),
+        Command::Demo(a) => demo::run(a),
+    }?;
+    Ok(ExitCode::SUCCESS)
+}
+
+/// The whole error chain on one line: outer context first.
+pub fn one_line(err: &anyhow::Error) -> String {
+    let mut parts: Vec<String> = Vec::new();
+    for cause in err.chain() {
+        let s = cause.to_string().replace('\n', " ");
+        if parts.last().is_some_and(|p| p.contains(&s)) {
+            continue;
+        }
+        parts.push(s);
+    }
+    parts.join(": ")
+}
+
+/// 2 for usage errors, 1 for everything else.
+pub fn exit_code(err: &anyhow::Error) -> u8 {
+    for cause in err.chain() {
+        if cause.downcast_ref::<UsageError>().is_some() {
+            return 2;
+        }
+        if let Some(e) = cause.downcast_ref::<vqforge::Error>() {
+            return if e.is_usage() { 2 } else { 1 };
+        }
+    }
+    1
+}
+
+/// True when the error is a closed stdout (e.g. piped into `head`).
+pub fn is_broken_pipe(err: &anyhow::Error) -> bool {
+    err.chain().any(|c| {
+        c.downcast_ref::<std::io::Error>()
+            .is_some_and(|e| e.kind() == std::io::ErrorKind::BrokenPipe)
+    })
+}

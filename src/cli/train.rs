@@ -1,0 +1,200 @@
+//! `vqforge train`: learn a codebook from CSV records.
+
+use std::time::Instant;
+
+use anyhow::{Context, Result};
+use serde_json::json;
+
+use vqforge::codebook::Scaling;
+use vqforge::format;
+use vqforge::kmeans::{Seeding, TrainConfig, TrainEvent};
+use vqforge::load::{read_table, CsvOptions, Missing, TimeChoice};
+use vqforge::records::{train_tables, RecordError};
+
+use super::args::{KmeansArgs, MissingArg, ReadArgs, ScaleArg, SeedingArg, ShapeArgs, TrainArgs};
+use super::output::{db, jnum, notices, num, print_json, print_pairs, print_table, secs};
+use super::{progress, usage};
+
+/// CSV reading options from the flags.
+pub fn csv_options(read: &ReadArgs, shape: Option<&ShapeArgs>) -> Result<CsvOptions> {
+    let delimiter = match read.delimiter.as_str() {
+        "tab" | "\\t" => b'\t',
+        s if s.len() == 1 && s.is_ascii() => s.as_bytes()[0],
+        s => {
+            return usage(format!(
+                "--delimiter must be one ASCII character or 'tab', got {s:?}"
+            ))
+        }
+    };
+    let mut o = CsvOptions::new()
+        .delimiter(delimiter)
+        .missing(match read.missing {
+            MissingArg::Error => Missing::Error,
+            MissingArg::Skip => Missing::Skip,
+        })
+        .time(match (&read.time, read.no_time) {
+            (_, true) => TimeChoice::Off,
+            (Some(c), false) => TimeChoice::Named(c.clone()),
+            (None, false) => TimeChoice::Auto,
+        });
+    if let Some(s) = shape {
+        if let Some(cols) = &s.columns {
+            o = o.columns(cols.iter().map(|c| c.trim().to_string()));
+        }
+        o = o.frame(s.frame).scaling(match s.scale {
+            ScaleArg::None => Scaling::None,
+            ScaleArg::Zscore => Scaling::ZScore,
+            ScaleArg::Minmax => Scaling::MinMax,
+        });
+    }
+    o.check()?;
+    Ok(o)
+}
+
+/// k-means configuration from the flags.
+pub fn train_config(size: usize, k: &KmeansArgs) -> Result<TrainConfig> {
+    Ok(TrainConfig::new(size)
+        .seeding(match k.seeding {
+            SeedingArg::KMeansPlusPlus => Seeding::KMeansPlusPlus,
+            SeedingArg::Split => Seeding::Split,
+            SeedingArg::Random => Seeding::Random,
+        })
+        .restarts(k.restarts)
+        .max_iterations(k.max_iter)
+        .tolerance(k.tolerance)
+        .seed(k.seed))
+}
+
+/// Per-column error as JSON.
+pub fn columns_json(e: &RecordError) -> serde_json::Value {
+    json!(e
+        .columns
+        .iter()
+        .zip(&e.per_column)
+        .map(|(name, c)| json!({
+            "column": name,
+            "mse": c.mse,
+            "max_abs_error": c.max_abs_error,
+            "snr_db": jnum(c.snr_db),
+        }))
+        .collect::<Vec<_>>())
+}
+
+/// Per-column error as table rows.
+pub fn columns_table(e: &RecordError) -> Vec<Vec<String>> {
+    let mut rows = vec![vec![
+        "column".to_string(),
+        "mse".to_string(),
+        "max |error|".to_string(),
+        "snr".to_string(),
+    ]];
+    for (name, c) in e.columns.iter().zip(&e.per_column) {
+        rows.push(vec![
+            name.clone(),
+            num(c.mse),
+            num(c.max_abs_error),
+            db(c.snr_db),
+        ]);
+    }
+    rows
+}
+
+pub fn run(a: TrainArgs) -> Result<()> {
+    let started = Instant::now();
+    let opts = csv_options(&a.read, Some(&a.shape))?;
+    let config = train_config(a.size, &a.kmeans)?.check()?;
+    for input in &a.inputs {
+        if input == &a.out {
+            return usage(format!(
+                "--out {} is also an input; choose another file for the codebook",
+                a.out.display()
+            ));
+        }
+    }
+    let mut tables = Vec::new();
+    for input in &a.inputs {
+        let name = input.display().to_string();
+        let file = std::fs::File::open(input).with_context(|| format!("opening input {name}"))?;
+        tables.push(read_table(std::io::BufReader::new(file), &name, &opts)?);
+    }
+    let bar = progress::spinner("training");
+    let restarts = config.get().restarts;
+    let observe = |e: TrainEvent| match e {
+        TrainEvent::RestartStarted { restart, of } => {
+            bar.set_message(format!("restart {}/{of}", restart + 1))
+        }
+        TrainEvent::Iteration {
+            restart,
+            iteration,
+            distortion,
+        } => bar.set_message(format!(
+            "restart {}/{restarts}, iteration {iteration}, distortion {}",
+            restart + 1,
+            num(distortion)
+        )),
+    };
+    let t = train_tables(&tables, &opts, &config, &observe)?;
+    bar.finish_and_clear();
+    format::write_codebook(&a.out, &t.codebook)
+        .with_context(|| format!("writing codebook {}", a.out.display()))?;
+    let seconds = started.elapsed().as_secs_f64();
+    notices(&t.notices);
+    let r = &t.report;
+    if a.json {
+        return print_json(&json!({
+            "size": r.size,
+            "requested_size": r.requested_size,
+            "dimension": t.codebook.dimension,
+            "vectors": t.vectors,
+            "rows": t.rows,
+            "distinct_vectors": r.distinct_vectors,
+            "mse": t.error.overall.mse,
+            "mse_scaled": t.error.mse_scaled,
+            "max_abs_error": t.error.overall.max_abs_error,
+            "snr_db": jnum(t.error.overall.snr_db),
+            "iterations": r.iterations,
+            "stopped_by": r.stopped_by.as_str(),
+            "restarts": r.restart_distortions.len(),
+            "best_restart": r.best_restart,
+            "seeding": r.seeding.as_str(),
+            "seed": r.seed,
+            "columns": columns_json(&t.error),
+            "out": a.out.display().to_string(),
+            "seconds": seconds,
+            "notices": t.notices,
+        }));
+    }
+    print_pairs(&[
+        (
+            "codebook",
+            format!(
+                "{} ({} codewords × {} components)",
+                a.out.display(),
+                r.size,
+                t.codebook.dimension
+            ),
+        ),
+        (
+            "trained on",
+            format!(
+                "{} rows → {} vectors ({} distinct)",
+                t.rows, t.vectors, r.distinct_vectors
+            ),
+        ),
+        (
+            "k-means",
+            format!(
+                "{}, {} restart(s), seed {}, best run: {} iteration(s), stopped: {}",
+                r.seeding.as_str(),
+                r.restart_distortions.len(),
+                r.seed,
+                r.iterations,
+                r.stopped_by.as_str()
+            ),
+        ),
+        ("mse (scaled)", num(t.error.mse_scaled)),
+        ("time", secs(seconds)),
+    ])?;
+    println!();
+    print_table(&columns_table(&t.error))
+}
