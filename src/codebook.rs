@@ -1,6 +1,6 @@
 //! The in-memory [`Codebook`]: codewords plus everything needed to use them
 //! (what the components mean, how they were scaled, how they were trained).
-//! Its file format lives in [`crate::format`].
+//! Its file format lives in [`crate::format`](mod@crate::format).
 
 use serde::{Deserialize, Serialize};
 

@@ -1,5 +1,5 @@
 //! k-means training: seeding, Lloyd iterations, restarts, empty-cluster
-//! repair and convergence. Pure: takes a [`VectorSet`](crate::vectors::VectorSet), returns codewords and
+//! repair and convergence. Pure: takes a [`VectorSet`], returns codewords and
 //! a report. Never opens files or prints.
 //!
 //! Determinism: every restart's seed derives from one master seed; work is

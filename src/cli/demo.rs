@@ -61,8 +61,8 @@ pub fn run(a: DemoArgs) -> Result<()> {
         bar.set_message(format!("k = {k}"));
         let config = TrainConfig::new(k).check()?;
         let t = train_tables(std::slice::from_ref(&table), &opts, &config, &|_| {})?;
-        let book_path = a.out_dir.join(format!("greenhouse-{k}.vqbook"));
-        let stream_path = a.out_dir.join(format!("greenhouse-{k}.vqstream"));
+        let book_path = a.out_dir.join(format!("greenhouse-{k}.vqb"));
+        let stream_path = a.out_dir.join(format!("greenhouse-{k}.vqs"));
         let csv_path = a.out_dir.join(format!("greenhouse-{k}-decoded.csv"));
         format::write_codebook(&book_path, &t.codebook)?;
         let enc = encode_reader(&text[..], &name, &t.codebook, &opts, &|_| {})?;
