@@ -51,10 +51,15 @@ impl ColumnScale {
 pub enum TimeFormat {
     /// A plain number (e.g. seconds or minutes), written with this many decimals.
     Number { decimals: u32 },
-    /// A calendar date `YYYY-MM-DD`.
-    Date,
-    /// A date and time `YYYY-MM-DDTHH:MM[:SS]` (or with a space for `T`).
-    DateTime { t_separator: bool, seconds: bool },
+    /// A calendar date `YYYY-MM-DD` (`YYYY/MM/DD` when `slashes`).
+    Date { slashes: bool },
+    /// A date and time `YYYY-MM-DDTHH:MM[:SS]` (a space for `T` unless
+    /// `t_separator`; slashes in the date when `slashes`).
+    DateTime {
+        t_separator: bool,
+        seconds: bool,
+        slashes: bool,
+    },
 }
 
 /// A regularly spaced time column: row `i` is at `start + i × step`.

@@ -204,7 +204,7 @@ impl<W: Write> RecordCsvWriter<W> {
 ///     scales: vec![ColumnScale::IDENTITY],
 ///     time_column: Some("date".into()),
 /// };
-/// let axis = TimeAxis { start: 951_782_400.0, step: 86_400.0, format: TimeFormat::Date };
+/// let axis = TimeAxis { start: 951_782_400.0, step: 86_400.0, format: TimeFormat::Date { slashes: false } };
 /// let time = TimeOut::Regular { axis, column: "date".into() };
 /// let mut out = Vec::new();
 /// write_records_csv(&mut out, &layout, &[0.1, 2.5], 2, time)?;
@@ -287,6 +287,7 @@ mod tests {
         let dt = TimeFormat::DateTime {
             t_separator: false,
             seconds: false,
+            slashes: false,
         };
         // 2024-02-28T23:30 is 1709163000 s (Python datetime, UTC).
         assert_eq!(

@@ -828,6 +828,7 @@ mod tests {
                             format: TimeFormat::DateTime {
                                 t_separator: true,
                                 seconds: false,
+                                slashes: false,
                             },
                         }),
                     });

@@ -465,7 +465,7 @@ impl RowReader {
         let parsed = match parse_time(text) {
             None if text.is_empty() => Err("the cell is empty".to_string()),
             None => Err(format!(
-                "\"{text}\" is not a time: expected a number, a date (YYYY-MM-DD) \
+                "\"{text}\" is not a time: expected a number, a date (YYYY-MM-DD or YYYY/MM/DD) \
                  or a date and time (YYYY-MM-DDTHH:MM[:SS])"
             )),
             Some(p) => match self.time_format {

@@ -89,7 +89,7 @@ fn days_in_month(year: i64, month: u32) -> u32 {
 }
 
 /// Parses a time cell (surrounding spaces ignored): a finite number, a date
-/// `YYYY-MM-DD`, or a date-time `YYYY-MM-DDTHH:MM` / `YYYY-MM-DDTHH:MM:SS`
+/// `YYYY-MM-DD` (or `YYYY/MM/DD`), or a date-time `YYYY-MM-DDTHH:MM` / `YYYY-MM-DDTHH:MM:SS`
 /// (a space may replace the `T`). Dates must exist (no 2023-02-29). Time
 /// zones and fractions of a second are not accepted. `None` when the text is
 /// none of these.
@@ -121,9 +121,10 @@ fn digits(bytes: &[u8]) -> Option<u32> {
 
 fn parse_iso(text: &str) -> Option<ParsedTime> {
     let b = text.as_bytes();
-    if !matches!(b.len(), 10 | 16 | 19) || b[4] != b'-' || b[7] != b'-' {
+    if !matches!(b.len(), 10 | 16 | 19) || b[4] != b[7] || !matches!(b[4], b'-' | b'/') {
         return None;
     }
+    let slashes = b[4] == b'/';
     let year = i64::from(digits(&b[0..4])?);
     let month = digits(&b[5..7])?;
     let day = digits(&b[8..10])?;
@@ -134,7 +135,7 @@ fn parse_iso(text: &str) -> Option<ParsedTime> {
     if b.len() == 10 {
         return Some(ParsedTime {
             value: (days * SECONDS_PER_DAY) as f64,
-            format: TimeFormat::Date,
+            format: TimeFormat::Date { slashes },
         });
     }
     let t_separator = match b[10] {
@@ -163,6 +164,7 @@ fn parse_iso(text: &str) -> Option<ParsedTime> {
         format: TimeFormat::DateTime {
             t_separator,
             seconds,
+            slashes,
         },
     })
 }
@@ -177,7 +179,7 @@ pub fn format_time(value: f64, format: TimeFormat) -> String {
             // Adding 0.0 turns −0 into 0 so "-0" is never written.
             format!("{:.*}", decimals as usize, value + 0.0)
         }
-        TimeFormat::Date | TimeFormat::DateTime { .. } => {
+        TimeFormat::Date { slashes } | TimeFormat::DateTime { slashes, .. } => {
             let total = value.round() as i64;
             let date = civil_from_days(total.div_euclid(SECONDS_PER_DAY));
             let year = if (0..=9999).contains(&date.year) {
@@ -185,10 +187,12 @@ pub fn format_time(value: f64, format: TimeFormat) -> String {
             } else {
                 date.year.to_string()
             };
-            let day_text = format!("{year}-{:02}-{:02}", date.month, date.day);
+            let ds = if slashes { '/' } else { '-' };
+            let day_text = format!("{year}{ds}{:02}{ds}{:02}", date.month, date.day);
             let TimeFormat::DateTime {
                 t_separator,
                 seconds,
+                ..
             } = format
             else {
                 return day_text;
@@ -212,16 +216,24 @@ pub(crate) fn merge_formats(seen: TimeFormat, next: TimeFormat) -> Option<TimeFo
         (TimeFormat::Number { decimals: a }, TimeFormat::Number { decimals: b }) => {
             Some(TimeFormat::Number { decimals: a.max(b) })
         }
-        (TimeFormat::Date, TimeFormat::Date) => Some(TimeFormat::Date),
+        (TimeFormat::Date { slashes: a }, TimeFormat::Date { slashes: b }) if a == b => {
+            Some(TimeFormat::Date { slashes: a })
+        }
         (
             TimeFormat::DateTime {
                 t_separator,
                 seconds: a,
+                slashes,
             },
-            TimeFormat::DateTime { seconds: b, .. },
-        ) => Some(TimeFormat::DateTime {
+            TimeFormat::DateTime {
+                seconds: b,
+                slashes: slashes_b,
+                ..
+            },
+        ) if slashes == slashes_b => Some(TimeFormat::DateTime {
             t_separator,
             seconds: a || b,
+            slashes,
         }),
         _ => None,
     }
@@ -231,7 +243,7 @@ pub(crate) fn merge_formats(seen: TimeFormat, next: TimeFormat) -> Option<TimeFo
 pub(crate) fn describe(format: TimeFormat) -> &'static str {
     match format {
         TimeFormat::Number { .. } => "a number",
-        TimeFormat::Date => "a date (YYYY-MM-DD)",
+        TimeFormat::Date { .. } => "a date (YYYY-MM-DD or YYYY/MM/DD)",
         TimeFormat::DateTime { .. } => "a date and time (YYYY-MM-DDTHH:MM[:SS])",
     }
 }
@@ -388,19 +400,24 @@ mod tests {
                 format: TimeFormat::Number { decimals: 0 }
             }
         );
-        assert_eq!(parse_time("2024-05-06").unwrap().format, TimeFormat::Date);
+        assert_eq!(
+            parse_time("2024-05-06").unwrap().format,
+            TimeFormat::Date { slashes: false }
+        );
         assert_eq!(
             parse_time("2024-05-06T07:08").unwrap().format,
             TimeFormat::DateTime {
                 t_separator: true,
-                seconds: false
+                seconds: false,
+                slashes: false,
             }
         );
         assert_eq!(
             parse_time("2024-05-06 07:08:09").unwrap().format,
             TimeFormat::DateTime {
                 t_separator: false,
-                seconds: true
+                seconds: true,
+                slashes: false,
             }
         );
     }
@@ -414,7 +431,7 @@ mod tests {
             "2024-13-01",
             "2024-04-31",
             "2024-1-01",
-            "2024/01/01",
+            "2024/01-01",
             "2024-01-01T24:00",
             "2024-01-01T12:60",
             "2024-01-01T12:00:60",
@@ -450,16 +467,23 @@ mod tests {
     fn merging_keeps_the_widest_format() {
         let n = |d| TimeFormat::Number { decimals: d };
         assert_eq!(merge_formats(n(1), n(3)), Some(n(3)));
-        assert_eq!(merge_formats(n(1), TimeFormat::Date), None);
+        assert_eq!(
+            merge_formats(n(1), TimeFormat::Date { slashes: false }),
+            None
+        );
         let dt = |t, s| TimeFormat::DateTime {
             t_separator: t,
             seconds: s,
+            slashes: false,
         };
         assert_eq!(
             merge_formats(dt(true, false), dt(false, true)),
             Some(dt(true, true))
         );
-        assert_eq!(merge_formats(TimeFormat::Date, dt(true, true)), None);
+        assert_eq!(
+            merge_formats(TimeFormat::Date { slashes: false }, dt(true, true)),
+            None
+        );
     }
 
     fn verdict(times: &[f64]) -> TimeInfo {
