@@ -346,6 +346,12 @@ pub fn train_observed(
             }
             Seeding::Split => split_and_refine(&unique, cfg.size, &opts, &mut rng, &on_iter)?,
         };
+        let work = unique.len().saturating_mul(cfg.size).saturating_mul(dim);
+        let result = if work <= MOVE_REFINE_BUDGET {
+            refine_by_moves(&unique, &result, &opts, 100)?
+        } else {
+            result
+        };
         restart_distortions.push(result.distortion);
         if best
             .as_ref()
@@ -712,6 +718,113 @@ fn lloyd_observed(
     })
 }
 
+/// Largest n·k·d for which [`train`] polishes each run with single-vector
+/// moves ([`refine_by_moves`]); above it Lloyd alone is used, since one pass
+/// costs about as much as a Lloyd iteration and cannot run in parallel.
+pub const MOVE_REFINE_BUDGET: usize = 1 << 27;
+
+/// Polishes a Lloyd result by moving single vectors between clusters while
+/// that lowers the total distortion (the exact weighted criterion of
+/// Hartigan & Wong 1979: moving x of weight w from A to B changes the error
+/// by W_B·w/(W_B+w)·‖x−c_B‖² − W_A·w/(W_A−w)·‖x−c_A‖², with the centroids
+/// updated after every move). Lloyd stops at partitions where no vector is
+/// nearer another codeword; this also escapes those where moving one vector
+/// still pays, which finds noticeably lower distortion on small and
+/// clustered data. Sequential and deterministic; ends with a Lloyd pass so
+/// codewords, labels and distortion agree.
+pub fn refine_by_moves(
+    vectors: &VectorSet,
+    start: &LloydResult,
+    opts: &LloydOptions,
+    max_passes: u32,
+) -> Result<LloydResult> {
+    let d = vectors.dimension();
+    let k = start.codewords.len() / d;
+    let mut labels = start.labels.clone();
+    let mut weight = vec![0.0f64; k];
+    let mut sums = vec![0.0f64; k * d];
+    for (i, r) in vectors.rows().enumerate() {
+        let l = labels[i] as usize;
+        let w = vectors.weight(i);
+        weight[l] += w;
+        for (s, &x) in sums[l * d..(l + 1) * d].iter_mut().zip(r) {
+            *s += w * x as f64;
+        }
+    }
+    let mut centre = vec![0.0f64; k * d];
+    let set_centre = |centre: &mut [f64], sums: &[f64], weight: &[f64], j: usize| {
+        for c in 0..d {
+            centre[j * d + c] = if weight[j] > 0.0 {
+                sums[j * d + c] / weight[j]
+            } else {
+                0.0
+            };
+        }
+    };
+    for j in 0..k {
+        set_centre(&mut centre, &sums, &weight, j);
+    }
+    let dist = |x: &[f32], c: &[f64]| -> f64 {
+        x.iter()
+            .zip(c)
+            .map(|(&a, &b)| {
+                let e = a as f64 - b;
+                e * e
+            })
+            .sum()
+    };
+    for _ in 0..max_passes {
+        let mut moved = 0u64;
+        for (i, x) in vectors.rows().enumerate() {
+            let a = labels[i] as usize;
+            let w = vectors.weight(i);
+            if weight[a] - w <= weight[a] * 1e-12 {
+                continue; // never empty a cluster
+            }
+            let remove = weight[a] * w / (weight[a] - w) * dist(x, &centre[a * d..(a + 1) * d]);
+            let mut best = (remove, a);
+            for b in 0..k {
+                if b == a || weight[b] <= 0.0 {
+                    continue;
+                }
+                let add = weight[b] * w / (weight[b] + w) * dist(x, &centre[b * d..(b + 1) * d]);
+                if add < best.0 {
+                    best = (add, b);
+                }
+            }
+            let b = best.1;
+            // Move only for a real gain, not a rounding-level one.
+            if b != a && best.0 < remove * (1.0 - 1e-12) {
+                weight[a] -= w;
+                weight[b] += w;
+                for c in 0..d {
+                    let v = w * x[c] as f64;
+                    sums[a * d + c] -= v;
+                    sums[b * d + c] += v;
+                }
+                set_centre(&mut centre, &sums, &weight, a);
+                set_centre(&mut centre, &sums, &weight, b);
+                labels[i] = b as u32;
+                moved += 1;
+            }
+        }
+        if moved == 0 {
+            break;
+        }
+    }
+    let codewords: Vec<f32> = centre.iter().map(|&v| v as f32).collect();
+    let mut polished = lloyd(vectors, &codewords, opts)?;
+    if polished.distortion > start.distortion {
+        // Rounding could in principle undo a rounding-level gain: keep the better.
+        polished = start.clone();
+    }
+    polished.iterations += start.iterations;
+    let mut history = start.history.clone();
+    history.extend_from_slice(&polished.history);
+    polished.history = history;
+    Ok(polished)
+}
+
 /// LBG: from the weighted mean, repeatedly split the codewords with the
 /// largest cluster distortion (c → c ± δ, δ a small random direction scaled
 /// to the data's spread) and refine with Lloyd, until there are `k`.
@@ -862,6 +975,31 @@ mod tests {
             assert_eq!(t.report.size, 7);
             assert!(t.report.mse_per_component > 0.0);
         }
+    }
+
+    #[test]
+    fn single_vector_moves_never_lose_and_stay_consistent() {
+        let v = gaussian_mixture(12, 3000, &[[0.0, 0.0], [2.0, 0.0], [0.0, 2.0], [2.0, 2.0]]);
+        let opts = LloydOptions {
+            max_iterations: 300,
+            tolerance: 0.0,
+        };
+        let mut gained = 0;
+        for seed in 0..6 {
+            let init = seed_random(&v, 9, &mut SeededRng::new(seed));
+            let l = lloyd(&v, &init, &opts).unwrap();
+            let m = refine_by_moves(&v, &l, &opts, 100).unwrap();
+            assert!(m.distortion <= l.distortion);
+            if m.distortion < l.distortion * (1.0 - 1e-9) {
+                gained += 1;
+            }
+            assert_eq!(
+                Encoder::new(&m.codewords, 2).unwrap().encode(&v).unwrap(),
+                m.labels
+            );
+        }
+        // Lloyd alone stops at partitions a single move can still improve.
+        assert!(gained > 0);
     }
 
     #[test]
