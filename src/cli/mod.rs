@@ -51,12 +51,17 @@ pub fn run() -> Result<ExitCode> {
                     ExitCode::SUCCESS
                 });
             }
+            // clap's message is a paragraph plus usage hints: keep the
+            // paragraph, on one line.
             let text = e.to_string();
-            let first = text
+            let first: Vec<&str> = text
                 .lines()
-                .find(|l| !l.trim().is_empty())
-                .unwrap_or("invalid arguments")
-                .trim_start_matches("error: ");
+                .map(str::trim)
+                .skip_while(|l| l.is_empty())
+                .take_while(|l| !l.is_empty())
+                .collect();
+            let first = first.join(" ");
+            let first = first.trim_start_matches("error: ");
             return usage(format!("{first} (see 'vqforge --help')"));
         }
     };
