@@ -134,17 +134,13 @@ pub fn train_tables(
             ));
         }
     }
-    let merged = RecordTable {
-        columns: first.columns.clone(),
-        values: tables
+    let merged = RecordTable::new(
+        first.columns.clone(),
+        tables
             .iter()
             .flat_map(|t| t.values.iter().copied())
             .collect(),
-        times: None,
-        skipped_columns: first.skipped_columns.clone(),
-        skipped_rows: tables.iter().map(|t| t.skipped_rows).sum(),
-        notices: Vec::new(),
-    };
+    );
     let fitted = fit_layout(&merged, opts)?;
     let mut layout = fitted.layout;
     layout.time_column = first.times.as_ref().map(|t| t.name.clone());

@@ -158,14 +158,7 @@ mod tests {
     }
 
     fn table(columns: &[&str], values: Vec<f64>) -> RecordTable {
-        RecordTable {
-            columns: columns.iter().map(|c| c.to_string()).collect(),
-            values,
-            times: None,
-            skipped_columns: vec![],
-            skipped_rows: 0,
-            notices: vec![],
-        }
+        RecordTable::new(columns.iter().map(|c| c.to_string()).collect(), values)
     }
 
     fn names(list: &[&str]) -> Vec<String> {

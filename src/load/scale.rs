@@ -138,14 +138,7 @@ mod tests {
     use super::*;
 
     fn table(columns: &[&str], values: Vec<f64>) -> RecordTable {
-        RecordTable {
-            columns: columns.iter().map(|c| c.to_string()).collect(),
-            values,
-            times: None,
-            skipped_columns: vec![],
-            skipped_rows: 0,
-            notices: vec![],
-        }
+        RecordTable::new(columns.iter().map(|c| c.to_string()).collect(), values)
     }
 
     #[test]

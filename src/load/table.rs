@@ -44,6 +44,19 @@ pub struct RecordTable {
 }
 
 impl RecordTable {
+    /// A table of `values` (rows × columns, user units) with no time column,
+    /// nothing skipped and no notices: for building tables in memory.
+    pub fn new(columns: Vec<String>, values: Vec<f64>) -> Self {
+        RecordTable {
+            columns,
+            values,
+            times: None,
+            skipped_columns: Vec::new(),
+            skipped_rows: 0,
+            notices: Vec::new(),
+        }
+    }
+
     /// Number of kept rows.
     pub fn rows(&self) -> usize {
         if self.columns.is_empty() {
