@@ -12,11 +12,11 @@ use vqforge::records::decode_to_writer;
 
 use super::args::DecodeArgs;
 use super::output::{print_json, print_pairs, secs};
-use super::usage;
+use super::{same_file, usage};
 
 pub fn run(a: DecodeArgs) -> Result<()> {
     let started = Instant::now();
-    if a.stream == a.out || a.book == a.out {
+    if same_file(&a.stream, &a.out) || same_file(&a.book, &a.out) {
         return usage(format!(
             "--out {} would overwrite an input; choose another file",
             a.out.display()

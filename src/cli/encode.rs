@@ -12,11 +12,11 @@ use vqforge::records::{encode_reader, layout_of};
 use super::args::EncodeArgs;
 use super::output::{db, jnum, notices, num, print_json, print_pairs, print_table, secs};
 use super::train::{columns_json, columns_table, csv_options};
-use super::{progress, usage};
+use super::{progress, same_file, usage};
 
 pub fn run(a: EncodeArgs) -> Result<()> {
     let started = Instant::now();
-    if a.input == a.out || a.book == a.out {
+    if same_file(&a.input, &a.out) || same_file(&a.book, &a.out) {
         return usage(format!(
             "--out {} would overwrite an input; choose another file for the stream",
             a.out.display()

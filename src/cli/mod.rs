@@ -10,6 +10,7 @@ mod output;
 mod progress;
 mod train;
 
+use std::path::Path;
 use std::process::ExitCode;
 
 use anyhow::Result;
@@ -73,6 +74,18 @@ pub fn run() -> Result<ExitCode> {
         Command::Demo(a) => demo::run(a),
     }?;
     Ok(ExitCode::SUCCESS)
+}
+
+/// True when `a` and `b` name the same existing file, also when spelt
+/// differently (`./x.csv` and `x.csv`, or through a symbolic link).
+pub fn same_file(a: &Path, b: &Path) -> bool {
+    if a == b {
+        return true;
+    }
+    match (std::fs::canonicalize(a), std::fs::canonicalize(b)) {
+        (Ok(a), Ok(b)) => a == b,
+        _ => false,
+    }
 }
 
 /// The whole error chain on one line: outer context first.

@@ -13,7 +13,7 @@ use vqforge::records::{train_tables, RecordError};
 
 use super::args::{KmeansArgs, MissingArg, ReadArgs, ScaleArg, SeedingArg, ShapeArgs, TrainArgs};
 use super::output::{db, jnum, notices, num, print_json, print_pairs, print_table, secs};
-use super::{progress, usage};
+use super::{progress, same_file, usage};
 
 /// CSV reading options from the flags.
 pub fn csv_options(read: &ReadArgs, shape: Option<&ShapeArgs>) -> Result<CsvOptions> {
@@ -104,7 +104,7 @@ pub fn run(a: TrainArgs) -> Result<()> {
     let opts = csv_options(&a.read, Some(&a.shape))?;
     let config = train_config(a.size, &a.kmeans)?.check()?;
     for input in &a.inputs {
-        if input == &a.out {
+        if same_file(input, &a.out) {
             return usage(format!(
                 "--out {} is also an input; choose another file for the codebook",
                 a.out.display()
