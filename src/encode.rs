@@ -1,6 +1,5 @@
 //! Exact nearest-codeword search: a k-d tree over the codewords for low
-//! dimensions (colours, short frames), a scan with partial-distance early exit
-//! for higher ones, and batch encoding in fixed parallel chunks.
+//! dimensions (colours, short frames), a plain scan for higher ones, and batch encoding in fixed parallel chunks.
 //!
 //! Never trains. Distances here are squared Euclidean in `f32`, summed in
 //! component order; every method computes them the same way, so all methods
@@ -27,7 +26,8 @@ pub enum SearchMethod {
     Auto,
     /// k-d tree over the codewords.
     KdTree,
-    /// Every codeword in turn, abandoning one once its partial sum is too large.
+    /// Every codeword in turn. (An early exit on the partial sum was
+    /// measured slower: the branch costs more than the work it saves.)
     Scan,
 }
 
@@ -59,34 +59,6 @@ pub fn nearest_linear(codewords: &[f32], dimension: usize, query: &[f32]) -> Nea
             best = Nearest {
                 index: i as u32,
                 distance_sq: d,
-            };
-        }
-    }
-    best
-}
-
-/// Scan with partial-distance early exit: stops summing a codeword as soon as
-/// its partial sum exceeds the best so far. Exact, since partial sums of
-/// non-negative terms never decrease.
-#[inline]
-fn nearest_scan(codewords: &[f32], dimension: usize, query: &[f32]) -> Nearest {
-    let mut best = Nearest {
-        index: 0,
-        distance_sq: f32::INFINITY,
-    };
-    'outer: for (i, c) in codewords.chunks_exact(dimension).enumerate() {
-        let mut s = 0.0f32;
-        for (x, y) in c.iter().zip(query) {
-            let d = x - y;
-            s += d * d;
-            if s > best.distance_sq {
-                continue 'outer;
-            }
-        }
-        if s < best.distance_sq {
-            best = Nearest {
-                index: i as u32,
-                distance_sq: s,
             };
         }
     }
@@ -326,7 +298,7 @@ impl Encoder {
     pub fn nearest(&self, query: &[f32]) -> Nearest {
         match &self.tree {
             Some(t) => t.nearest(query),
-            None => nearest_scan(&self.codewords, self.dimension, query),
+            None => nearest_linear(&self.codewords, self.dimension, query),
         }
     }
 
