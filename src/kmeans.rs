@@ -252,6 +252,51 @@ pub struct LloydResult {
     pub stopped_by: StopReason,
 }
 
+/// Moves one codeword onto the nearest allowed point, in place.
+pub type SnapFn<'a> = &'a (dyn Fn(&mut [f32]) + Sync);
+
+/// Rules the codewords must obey during training (palettes for displays):
+/// fixed codewords that stay where they are, and a projection that moves
+/// every other codeword onto an allowed point after each update.
+#[derive(Clone, Copy, Default)]
+pub struct Constraint<'a> {
+    /// Codewords that must be in the result unchanged (flat); they come
+    /// first, in this order, and are never moved or repaired.
+    pub fixed: &'a [f32],
+    /// Moves one free codeword (a slice of `dimension` values) onto the
+    /// nearest allowed point, in place. Must be deterministic.
+    pub snap: Option<SnapFn<'a>>,
+}
+
+impl std::fmt::Debug for Constraint<'_> {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("Constraint")
+            .field("fixed", &self.fixed)
+            .field("snap", &self.snap.is_some())
+            .finish()
+    }
+}
+
+impl Constraint<'_> {
+    fn fixed_count(&self, d: usize) -> usize {
+        self.fixed.len() / d
+    }
+
+    fn snap_one(&self, v: &mut [f32]) {
+        if let Some(f) = self.snap {
+            f(v);
+        }
+    }
+
+    /// The same rules without the projection (for the unconstrained stages).
+    fn without_snap(&self) -> Self {
+        Constraint {
+            fixed: self.fixed,
+            snap: None,
+        }
+    }
+}
+
 /// Trains a codebook of `config.size` codewords on `vectors`.
 ///
 /// ```
@@ -278,33 +323,90 @@ pub fn train_observed(
     config: &CheckedTrainConfig,
     observe: &(dyn Fn(TrainEvent) + Sync),
 ) -> Result<Trained> {
+    train_constrained(vectors, config, Constraint::default(), observe)
+}
+
+/// [`train_observed`] under a [`Constraint`]: the fixed codewords come first
+/// and stay; the others are seeded around them, trained freely (Lloyd, then
+/// single-vector moves), then refined with the projection applied after
+/// every update and the vectors reassigned, so the result is a local optimum
+/// among allowed codebooks rather than a free one rounded afterwards.
+pub fn train_constrained(
+    vectors: &VectorSet,
+    config: &CheckedTrainConfig,
+    constraint: Constraint<'_>,
+    observe: &(dyn Fn(TrainEvent) + Sync),
+) -> Result<Trained> {
     let cfg = config.get();
     if vectors.is_empty() {
         return Err(Error::new("training", ErrorKind::EmptyInput));
     }
     let dim = vectors.dimension();
+    if constraint.fixed.len() % dim != 0 {
+        return Err(Error::new(
+            "training",
+            ErrorKind::DimensionMismatch {
+                expected: dim,
+                found: constraint.fixed.len(),
+            },
+        ));
+    }
+    let fixed = constraint.fixed_count(dim);
+    if fixed > cfg.size {
+        return Err(Error::new(
+            "training",
+            ErrorKind::InvalidParameter(format!(
+                "{fixed} fixed codewords do not fit in a codebook of {}",
+                cfg.size
+            )),
+        ));
+    }
     let unique = positive_weight(&vectors.deduplicated())?;
     let distinct = unique.len();
     let total_weight = unique.total_weight();
     let mut notices = Vec::new();
 
+    // The distinct allowed points the data can offer beyond the fixed ones.
+    let mut offered: Vec<Vec<f32>> = Vec::new();
     if distinct <= cfg.size {
-        if distinct < cfg.size {
+        for r in unique.rows() {
+            let mut v = r.to_vec();
+            constraint.snap_one(&mut v);
+            let bits: Vec<u32> = v.iter().map(|x| x.to_bits()).collect();
+            let known = constraint
+                .fixed
+                .chunks_exact(dim)
+                .chain(offered.iter().map(|o| o.as_slice()))
+                .any(|c| c.iter().map(|x| x.to_bits()).eq(bits.iter().copied()));
+            if !known {
+                offered.push(v);
+            }
+        }
+    }
+    if distinct <= cfg.size && fixed + offered.len() <= cfg.size {
+        let size = fixed + offered.len();
+        if size < cfg.size {
             notices.push(format!(
-                "the input has only {distinct} distinct vectors; the codebook has {distinct} codewords instead of {}",
+                "the input has only {distinct} distinct vectors; the codebook has {size} codewords instead of {}",
                 cfg.size
             ));
         }
+        let mut codewords = constraint.fixed.to_vec();
+        for o in &offered {
+            codewords.extend_from_slice(o);
+        }
+        let mut labels = vec![u32::MAX; unique.len()];
+        let distortion = assign(&unique, &codewords, &mut labels)?.distortion;
         return Ok(Trained {
-            codewords: unique.as_flat().to_vec(),
+            codewords,
             dimension: dim,
             report: TrainReport {
                 requested_size: cfg.size,
-                size: distinct,
+                size,
                 iterations: 0,
                 stopped_by: StopReason::Converged,
-                distortion: 0.0,
-                mse_per_component: 0.0,
+                distortion,
+                mse_per_component: distortion / (total_weight * dim as f64),
                 restart_distortions: vec![0.0],
                 best_restart: 0,
                 seed: cfg.seed,
@@ -335,20 +437,27 @@ pub fn train_observed(
                 distortion,
             })
         };
+        let free = constraint.without_snap();
         let result = match cfg.seeding {
             Seeding::KMeansPlusPlus => {
-                let init = seed_kmeans_plus_plus(&unique, cfg.size, &mut rng);
-                lloyd_observed(&unique, &init, &opts, &on_iter)?
+                let init =
+                    seed_kmeans_plus_plus_around(&unique, cfg.size, &mut rng, constraint.fixed);
+                lloyd_core(&unique, &init, &opts, free, &on_iter)?
             }
             Seeding::Random => {
-                let init = seed_random(&unique, cfg.size, &mut rng);
-                lloyd_observed(&unique, &init, &opts, &on_iter)?
+                let mut init = constraint.fixed.to_vec();
+                init.extend(seed_random(&unique, cfg.size - fixed, &mut rng));
+                lloyd_core(&unique, &init, &opts, free, &on_iter)?
             }
-            Seeding::Split => split_and_refine(&unique, cfg.size, &opts, &mut rng, &on_iter)?,
+            Seeding::Split => split_and_refine(&unique, cfg.size, &opts, &mut rng, free, &on_iter)?,
         };
         let work = unique.len().saturating_mul(cfg.size).saturating_mul(dim);
         let result = if work <= MOVE_REFINE_BUDGET {
-            refine_by_moves(&unique, &result, &opts, 100)?
+            refine_by_moves_core(&unique, &result, &opts, 100, constraint)?
+        } else if constraint.snap.is_some() {
+            let mut snapped = lloyd_core(&unique, &result.codewords, &opts, constraint, &on_iter)?;
+            snapped.iterations += result.iterations;
+            snapped
         } else {
             result
         };
@@ -445,24 +554,43 @@ fn draw(prefix: &[f64], rng: &mut SeededRng) -> usize {
 
 /// Greedy weighted k-means++ seeding. Needs more distinct vectors than `k`.
 pub fn seed_kmeans_plus_plus(vectors: &VectorSet, k: usize, rng: &mut SeededRng) -> Vec<f32> {
+    seed_kmeans_plus_plus_around(vectors, k, rng, &[])
+}
+
+/// Greedy weighted k-means++ that starts from the given centres (flat,
+/// possibly none) and adds the rest; the result begins with `fixed`.
+pub fn seed_kmeans_plus_plus_around(
+    vectors: &VectorSet,
+    k: usize,
+    rng: &mut SeededRng,
+    fixed: &[f32],
+) -> Vec<f32> {
     let n = vectors.len();
     let d = vectors.dimension();
     let candidates = 2 + (k as f64).ln().floor() as usize;
     let mut centres: Vec<f32> = Vec::with_capacity(k * d);
-
-    let wprefix: Vec<f64> = (0..n)
-        .scan(0.0, |s, i| {
-            *s += vectors.weight(i);
-            Some(*s)
-        })
-        .collect();
-    let first = draw(&wprefix, rng);
-    centres.extend_from_slice(vectors.row(first));
+    let start: Vec<f32> = if fixed.is_empty() {
+        let wprefix: Vec<f64> = (0..n)
+            .scan(0.0, |s, i| {
+                *s += vectors.weight(i);
+                Some(*s)
+            })
+            .collect();
+        vectors.row(draw(&wprefix, rng)).to_vec()
+    } else {
+        fixed.to_vec()
+    };
+    centres.extend_from_slice(&start);
     // Closest squared distance of each vector to the chosen centres.
     let mut closest: Vec<f64> = (0..n)
         .into_par_iter()
         .with_min_len(CHUNK_ROWS)
-        .map(|i| exact_sq(vectors.row(i), vectors.row(first)))
+        .map(|i| {
+            start
+                .chunks_exact(d)
+                .map(|c| exact_sq(vectors.row(i), c))
+                .fold(f64::INFINITY, f64::min)
+        })
         .collect();
 
     while centres.len() < k * d {
@@ -592,14 +720,27 @@ fn assign(vectors: &VectorSet, codewords: &[f32], labels: &mut [u32]) -> Result<
 /// vector with the largest weighted squared error against the updated
 /// codewords, taken only from clusters that keep at least one other member,
 /// ties to the lowest vector index. Returns how many were repaired.
-fn update(vectors: &VectorSet, codewords: &mut [f32], labels: &[u32], p: &Partial) -> usize {
+fn update(
+    vectors: &VectorSet,
+    codewords: &mut [f32],
+    labels: &[u32],
+    p: &Partial,
+    constraint: Constraint<'_>,
+) -> usize {
     let d = vectors.dimension();
     let k = codewords.len() / d;
+    let fixed = constraint.fixed_count(d);
     let mut empty = Vec::new();
-    for i in 0..k {
+    for i in fixed..k {
         if p.weights[i] > 0.0 {
             for c in 0..d {
                 codewords[i * d + c] = (p.sums[i * d + c] / p.weights[i]) as f32;
+            }
+            constraint.snap_one(&mut codewords[i * d..(i + 1) * d]);
+            // Two codewords snapped onto one point: the later one is repaired.
+            let here = &codewords[i * d..(i + 1) * d];
+            if (0..i).any(|j| &codewords[j * d..(j + 1) * d] == here) {
+                empty.push(i);
             }
         } else {
             empty.push(i);
@@ -630,9 +771,14 @@ fn update(vectors: &VectorSet, codewords: &mut [f32], labels: &[u32], p: &Partia
             }
         }
         let Some(i) = pick else { break };
-        codewords[e * d..(e + 1) * d].copy_from_slice(vectors.row(i));
-        members[labels[i] as usize] -= 1;
         err[i] = 0.0;
+        let mut target = vectors.row(i).to_vec();
+        constraint.snap_one(&mut target);
+        if (0..k).any(|j| j != e && codewords[j * d..(j + 1) * d] == target[..]) {
+            continue; // its allowed point is taken; the codeword stays unused
+        }
+        codewords[e * d..(e + 1) * d].copy_from_slice(&target);
+        members[labels[i] as usize] -= 1;
         repaired += 1;
     }
     repaired
@@ -646,13 +792,25 @@ fn update(vectors: &VectorSet, codewords: &mut [f32], labels: &[u32], p: &Partia
 /// below `tolerance`, or at the cap; unless it converged, one more update and
 /// a final assignment pass make codewords, labels and distortion agree.
 pub fn lloyd(vectors: &VectorSet, initial: &[f32], opts: &LloydOptions) -> Result<LloydResult> {
-    lloyd_observed(vectors, initial, opts, &|_, _| {})
+    lloyd_core(vectors, initial, opts, Constraint::default(), &|_, _| {})
 }
 
-fn lloyd_observed(
+/// [`lloyd`] under a [`Constraint`] (the fixed codewords are the first ones
+/// of `initial`), with a callback after every assignment pass.
+pub fn lloyd_constrained(
     vectors: &VectorSet,
     initial: &[f32],
     opts: &LloydOptions,
+    constraint: Constraint<'_>,
+) -> Result<LloydResult> {
+    lloyd_core(vectors, initial, opts, constraint, &|_, _| {})
+}
+
+fn lloyd_core(
+    vectors: &VectorSet,
+    initial: &[f32],
+    opts: &LloydOptions,
+    constraint: Constraint<'_>,
     on_iter: &(dyn Fn(u32, f64) + Sync),
 ) -> Result<LloydResult> {
     let d = vectors.dimension();
@@ -675,6 +833,15 @@ fn lloyd_observed(
         ));
     }
     let mut codewords = initial.to_vec();
+    let fixed = constraint.fixed_count(d);
+    if fixed > 0 {
+        codewords[..fixed * d].copy_from_slice(constraint.fixed);
+    }
+    if constraint.snap.is_some() {
+        for c in codewords[fixed * d..].chunks_exact_mut(d) {
+            constraint.snap_one(c);
+        }
+    }
     let mut labels = vec![u32::MAX; vectors.len()];
     let mut history = Vec::new();
     let mut iterations = 0;
@@ -691,7 +858,7 @@ fn lloyd_observed(
         }
         let small_gain = prev
             .is_some_and(|prev: f64| prev <= 0.0 || (prev - p.distortion) / prev < opts.tolerance);
-        update(vectors, &mut codewords, &labels, &p);
+        update(vectors, &mut codewords, &labels, &p, constraint);
         if small_gain {
             stopped_by = StopReason::Tolerance;
             break;
@@ -738,7 +905,21 @@ pub fn refine_by_moves(
     opts: &LloydOptions,
     max_passes: u32,
 ) -> Result<LloydResult> {
+    refine_by_moves_core(vectors, start, opts, max_passes, Constraint::default())
+}
+
+/// [`refine_by_moves`] keeping the constraint's fixed codewords where they
+/// are (a vector joining or leaving their cluster costs w·‖x − c‖² exactly),
+/// and ending with a Lloyd pass under the full constraint.
+fn refine_by_moves_core(
+    vectors: &VectorSet,
+    start: &LloydResult,
+    opts: &LloydOptions,
+    max_passes: u32,
+    constraint: Constraint<'_>,
+) -> Result<LloydResult> {
     let d = vectors.dimension();
+    let fixed = constraint.fixed_count(d);
     let k = start.codewords.len() / d;
     let mut labels = start.labels.clone();
     let mut weight = vec![0.0f64; k];
@@ -762,7 +943,13 @@ pub fn refine_by_moves(
         }
     };
     for j in 0..k {
-        set_centre(&mut centre, &sums, &weight, j);
+        if j < fixed {
+            for c in 0..d {
+                centre[j * d + c] = start.codewords[j * d + c] as f64;
+            }
+        } else {
+            set_centre(&mut centre, &sums, &weight, j);
+        }
     }
     let dist = |x: &[f32], c: &[f64]| -> f64 {
         x.iter()
@@ -778,16 +965,26 @@ pub fn refine_by_moves(
         for (i, x) in vectors.rows().enumerate() {
             let a = labels[i] as usize;
             let w = vectors.weight(i);
-            if weight[a] - w <= weight[a] * 1e-12 {
-                continue; // never empty a cluster
+            if a >= fixed && weight[a] - w <= weight[a] * 1e-12 {
+                continue; // never empty a free cluster
             }
-            let remove = weight[a] * w / (weight[a] - w) * dist(x, &centre[a * d..(a + 1) * d]);
+            let da = dist(x, &centre[a * d..(a + 1) * d]);
+            let remove = if a < fixed {
+                w * da
+            } else {
+                weight[a] * w / (weight[a] - w) * da
+            };
             let mut best = (remove, a);
             for b in 0..k {
-                if b == a || weight[b] <= 0.0 {
+                if b == a || (b >= fixed && weight[b] <= 0.0) {
                     continue;
                 }
-                let add = weight[b] * w / (weight[b] + w) * dist(x, &centre[b * d..(b + 1) * d]);
+                let db = dist(x, &centre[b * d..(b + 1) * d]);
+                let add = if b < fixed {
+                    w * db
+                } else {
+                    weight[b] * w / (weight[b] + w) * db
+                };
                 if add < best.0 {
                     best = (add, b);
                 }
@@ -802,8 +999,12 @@ pub fn refine_by_moves(
                     sums[a * d + c] -= v;
                     sums[b * d + c] += v;
                 }
-                set_centre(&mut centre, &sums, &weight, a);
-                set_centre(&mut centre, &sums, &weight, b);
+                if a >= fixed {
+                    set_centre(&mut centre, &sums, &weight, a);
+                }
+                if b >= fixed {
+                    set_centre(&mut centre, &sums, &weight, b);
+                }
                 labels[i] = b as u32;
                 moved += 1;
             }
@@ -812,9 +1013,10 @@ pub fn refine_by_moves(
             break;
         }
     }
-    let codewords: Vec<f32> = centre.iter().map(|&v| v as f32).collect();
-    let mut polished = lloyd(vectors, &codewords, opts)?;
-    if polished.distortion > start.distortion {
+    let mut codewords: Vec<f32> = centre.iter().map(|&v| v as f32).collect();
+    codewords[..fixed * d].copy_from_slice(&start.codewords[..fixed * d]);
+    let mut polished = lloyd_core(vectors, &codewords, opts, constraint, &|_, _| {})?;
+    if constraint.snap.is_none() && polished.distortion > start.distortion {
         // Rounding could in principle undo a rounding-level gain: keep the better.
         polished = start.clone();
     }
@@ -833,9 +1035,11 @@ fn split_and_refine(
     k: usize,
     opts: &LloydOptions,
     rng: &mut SeededRng,
+    constraint: Constraint<'_>,
     on_iter: &(dyn Fn(u32, f64) + Sync),
 ) -> Result<LloydResult> {
     let d = vectors.dimension();
+    let fixed = constraint.fixed_count(d);
     let total = vectors.total_weight();
     let mut mean = vec![0.0f64; d];
     for (i, r) in vectors.rows().enumerate() {
@@ -855,11 +1059,13 @@ fn split_and_refine(
         .iter()
         .map(|s| (s / total).sqrt().max(f64::MIN_POSITIVE))
         .collect();
-    let mut codewords: Vec<f32> = mean.iter().map(|&m| m as f32).collect();
-    let mut result = lloyd_observed(vectors, &codewords, opts, on_iter)?;
+    let mut codewords: Vec<f32> = constraint.fixed.to_vec();
+    codewords.extend(mean.iter().map(|&m| m as f32));
+    let mut result = lloyd_core(vectors, &codewords, opts, constraint, on_iter)?;
     while result.codewords.len() / d < k {
         let cur = result.codewords.len() / d;
-        let grow = cur.min(k - cur);
+        // Only free codewords split; fixed ones stay single.
+        let grow = (cur - fixed).min(k - cur);
         // Split the clusters with the most distortion first.
         let mut cluster_err = vec![0.0f64; cur];
         for (i, r) in vectors.rows().enumerate() {
@@ -867,7 +1073,7 @@ fn split_and_refine(
             cluster_err[l] +=
                 vectors.weight(i) * exact_sq(r, &result.codewords[l * d..(l + 1) * d]);
         }
-        let mut order: Vec<usize> = (0..cur).collect();
+        let mut order: Vec<usize> = (fixed..cur).collect();
         order.sort_by(|&a, &b| cluster_err[b].total_cmp(&cluster_err[a]).then(a.cmp(&b)));
         codewords = result.codewords.clone();
         for &c in order.iter().take(grow) {
@@ -881,7 +1087,7 @@ fn split_and_refine(
             }
             codewords.extend(base.iter().zip(&delta).map(|(b, dl)| (b - dl) as f32));
         }
-        result = lloyd_observed(vectors, &codewords, opts, on_iter)?;
+        result = lloyd_core(vectors, &codewords, opts, constraint, on_iter)?;
     }
     Ok(result)
 }
@@ -1000,6 +1206,75 @@ mod tests {
         }
         // Lloyd alone stops at partitions a single move can still improve.
         assert!(gained > 0);
+    }
+
+    /// Rounds every component to a multiple of 0.5: a stand-in display grid.
+    fn half_grid(v: &mut [f32]) {
+        for x in v.iter_mut() {
+            *x = (*x * 2.0).round() / 2.0;
+        }
+    }
+
+    #[test]
+    fn fixed_codewords_stay_and_snapped_ones_sit_on_the_grid() {
+        let v = gaussian_mixture(21, 6000, &[[0.0, 0.0], [3.0, 0.0], [0.0, 3.0], [3.0, 3.0]]);
+        let fixed = [10.0f32, 10.0, -4.0, 0.25];
+        let snap: &(dyn Fn(&mut [f32]) + Sync) = &half_grid;
+        let c = Constraint {
+            fixed: &fixed,
+            snap: Some(snap),
+        };
+        for seeding in [Seeding::KMeansPlusPlus, Seeding::Random, Seeding::Split] {
+            let cfg = TrainConfig::new(9).seeding(seeding).check().unwrap();
+            let t = train_constrained(&v, &cfg, c, &|_| {}).unwrap();
+            assert_eq!(&t.codewords[..4], &fixed, "{seeding:?}");
+            let mut seen = Vec::new();
+            for cw in t.codewords[4..].chunks_exact(2) {
+                let mut g = cw.to_vec();
+                half_grid(&mut g);
+                assert_eq!(g, cw, "{seeding:?}: off the grid");
+                assert!(!seen.contains(&g), "{seeding:?}: duplicate codeword");
+                seen.push(g);
+            }
+            assert_eq!(t.report.size, 9);
+            // The reported distortion is that of the returned codewords.
+            let e = Encoder::new(&t.codewords, 2).unwrap();
+            let idx = e.encode(&v).unwrap();
+            let d: f64 = v
+                .rows()
+                .zip(&idx)
+                .map(|(r, &i)| exact_sq(r, &t.codewords[i as usize * 2..i as usize * 2 + 2]))
+                .sum();
+            assert!((d - t.report.distortion).abs() <= 1e-9 * d);
+        }
+        assert!(TrainConfig::new(1)
+            .check()
+            .map(|cfg| train_constrained(&v, &cfg, c, &|_| {}).is_err())
+            .unwrap());
+    }
+
+    #[test]
+    fn training_on_the_grid_beats_rounding_a_free_codebook() {
+        let v = gaussian_mixture(22, 8000, &[[0.1, 0.2], [1.3, 0.4], [0.2, 1.6], [1.1, 1.2]]);
+        let cfg = TrainConfig::new(12).check().unwrap();
+        let free = train(&v, &cfg).unwrap();
+        let mut rounded = free.codewords.clone();
+        for c in rounded.chunks_exact_mut(2) {
+            half_grid(c);
+        }
+        let mut labels = vec![u32::MAX; v.len()];
+        let after_rounding = assign(&v, &rounded, &mut labels).unwrap().distortion;
+        let snap: &(dyn Fn(&mut [f32]) + Sync) = &half_grid;
+        let c = Constraint {
+            fixed: &[],
+            snap: Some(snap),
+        };
+        let on_grid = train_constrained(&v, &cfg, c, &|_| {}).unwrap();
+        assert!(
+            on_grid.report.distortion < after_rounding,
+            "{} vs {after_rounding}",
+            on_grid.report.distortion
+        );
     }
 
     #[test]
