@@ -42,6 +42,7 @@
 
 pub mod atomic;
 pub mod codebook;
+pub mod colour;
 pub mod encode;
 pub mod error;
 pub mod export;
