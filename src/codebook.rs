@@ -110,6 +110,8 @@ pub enum Meaning {
     Records(RecordLayout),
     /// Plain vectors with no further meaning (library use).
     Plain,
+    /// Colours of a palette for a display.
+    Pixels(crate::palette::PixelLayout),
 }
 
 /// Facts about the training run, kept for `info` and reproducibility.
@@ -164,6 +166,17 @@ impl Codebook {
         }
         if self.codewords.iter().any(|v| !v.is_finite()) {
             return bad("a codeword holds a non-finite value".into());
+        }
+        if let Meaning::Pixels(layout) = &self.meaning {
+            if layout.dimension() != self.dimension {
+                return bad(format!(
+                    "a palette with dimension {} does not match its alpha mode",
+                    self.dimension
+                ));
+            }
+            if self.size() > 1 << 16 {
+                return bad(format!("a palette of {} entries is too large", self.size()));
+            }
         }
         if let Meaning::Records(layout) = &self.meaning {
             if layout.frame == 0 || layout.columns.is_empty() {

@@ -144,6 +144,15 @@ pub struct RecordInfo {
     pub time: Option<TimeAxis>,
 }
 
+/// Extra facts a stream of image pixels carries so decode can rebuild the image.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+pub struct ImageInfo {
+    /// Width in pixels; the stream holds width × height indices, row by row.
+    pub width: u32,
+    /// Height in pixels.
+    pub height: u32,
+}
+
 /// The index-stream file's header. The field order is part of the format.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct StreamHeader {
@@ -159,6 +168,8 @@ pub struct StreamHeader {
     pub dimension: u64,
     /// Present when the vectors are table records.
     pub records: Option<RecordInfo>,
+    /// Present when the vectors are the pixels of an image.
+    pub image: Option<ImageInfo>,
 }
 
 impl StreamHeader {
@@ -178,6 +189,7 @@ impl StreamHeader {
             codebook_fingerprint,
             dimension: codebook.dimension as u64,
             records,
+            image: None,
         })
     }
 }
@@ -594,6 +606,21 @@ pub fn check_stream_matches(header: &StreamHeader, codebook: &Codebook) -> Resul
             header.codebook_fingerprint
         ));
     }
+    if let Some(image) = &header.image {
+        if !matches!(codebook.meaning, Meaning::Pixels(_)) {
+            return mismatch("the stream holds an image, but the codebook is not a palette".into());
+        }
+        let pixels = image.width as u64 * image.height as u64;
+        if pixels != header.vectors || pixels == 0 {
+            return Err(format_error(
+                STAGE,
+                format!(
+                    "the stream says the image is {}×{}, but it holds {} indices",
+                    image.width, image.height, header.vectors
+                ),
+            ));
+        }
+    }
     if let Some(records) = &header.records {
         let Meaning::Records(layout) = &codebook.meaning else {
             return mismatch(
@@ -684,6 +711,7 @@ mod tests {
             codebook_fingerprint: 0x1234_5678,
             dimension: 3,
             records: None,
+            image: None,
         }
     }
 
@@ -727,8 +755,9 @@ mod tests {
             codebook_fingerprint: 0x1234_5678,
             dimension: 3,
             records: None,
+            image: None,
         };
-        let expected: [u8; 29] = [
+        let expected: [u8; 30] = [
             b'V',
             b'Q',
             b'F',
@@ -739,10 +768,10 @@ mod tests {
             b'S', // magic
             0x01,
             0x00, // version 1
-            0x0A,
+            0x0B,
             0x00,
             0x00,
-            0x00, // header length 10
+            0x00, // header length 11
             0x04,
             0x02,
             0x04, // size 4, bits 2, vectors 4
@@ -752,12 +781,13 @@ mod tests {
             0x91,
             0x01, // fingerprint 0x12345678 as a varint
             0x03,
-            0x00,        // dimension 3, records None
+            0x00,
+            0x00,        // dimension 3, records None, image None
             0b0100_1110, // indices 1 0 3 2
-            0x33,
-            0x20,
-            0x49,
-            0x7E, // CRC-32 0x7E492033
+            0x36,
+            0x58,
+            0x5A,
+            0x3C, // CRC-32 0x3C5A5836
         ];
         assert_eq!(stream_to_bytes(&header, &[1, 0, 3, 2]).unwrap(), expected);
 

@@ -51,6 +51,7 @@ pub mod kmeans;
 pub mod load;
 pub mod metrics;
 pub mod pack;
+pub mod palette;
 pub mod records;
 pub mod rng;
 pub mod vectors;

@@ -217,6 +217,13 @@ pub fn layout_of(codebook: &Codebook) -> Result<&RecordLayout> {
             "checking codebook",
             ErrorKind::Mismatch("this codebook was not trained on CSV records".into()),
         )),
+        Meaning::Pixels(_) => Err(Error::new(
+            "checking codebook",
+            ErrorKind::Mismatch(
+                "this codebook is a palette trained on images; give it an image, not CSV records"
+                    .into(),
+            ),
+        )),
     }
 }
 

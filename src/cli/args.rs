@@ -16,12 +16,14 @@ pub struct Cli {
 
 #[derive(Debug, Subcommand)]
 pub enum Command {
-    /// Learn a codebook from CSV records.
+    /// Learn a codebook from CSV records, or a shared palette from images.
     Train(TrainArgs),
     /// Replace every record (or frame of records) by its nearest codeword's index.
     Encode(EncodeArgs),
-    /// Rebuild records (CSV) from an index stream and its codebook.
+    /// Rebuild records (CSV) or an image (PNG) from an index stream and its codebook.
     Decode(DecodeArgs),
+    /// One step for a display: fit a palette to an image and write it as an indexed PNG.
+    Palette(PaletteArgs),
     /// Show what a codebook or stream file holds.
     Info(InfoArgs),
     /// Run the whole job on the bundled sample inputs.
@@ -58,6 +60,110 @@ pub enum SeedingArg {
     Split,
     /// Random input vectors.
     Random,
+}
+
+/// Working colour space for palettes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum SpaceArg {
+    /// sRGB code values (0..255).
+    Srgb,
+    /// Linear-light RGB (0..255).
+    Linear,
+    /// CIELAB (D65).
+    Lab,
+    /// Oklab.
+    Oklab,
+}
+
+/// What a display can show.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum DisplayArg {
+    Rgb888,
+    Rgb666,
+    Rgb565,
+    Rgb555,
+    Rgb444,
+    Rgb332,
+    Gray8,
+    Gray4,
+    Gray2,
+    Gray1,
+}
+
+/// Partly transparent pixels.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum AlphaArg {
+    /// Composite over --background, then fit opaque colours.
+    Composite,
+    /// Fit RGBA colours (alpha is part of each entry).
+    Keep,
+}
+
+/// Dithering while mapping pixels to the palette.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum DitherArg {
+    /// Nearest entry for every pixel.
+    None,
+    /// Error diffusion (Floyd–Steinberg, serpentine).
+    FloydSteinberg,
+    /// Ordered, 4×4 Bayer matrix.
+    Bayer4,
+    /// Ordered, 8×8 Bayer matrix.
+    Bayer8,
+}
+
+/// Order of palette entries.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum OrderArg {
+    /// Most used first.
+    Frequency,
+    /// Darkest first.
+    Lightness,
+}
+
+/// Palette options (images only).
+#[derive(Debug, Clone, Args)]
+pub struct ColourArgs {
+    /// Colour space the palette is fitted in [default: oklab].
+    #[arg(long, value_enum, value_name = "SPACE")]
+    pub space: Option<SpaceArg>,
+
+    /// Pixel format of the display; every palette entry is exactly showable on it [default: rgb888].
+    #[arg(long, value_enum, value_name = "FORMAT")]
+    pub display: Option<DisplayArg>,
+
+    /// Colours that must be in the palette, e.g. '#000000,#ffffff'.
+    #[arg(long, value_name = "COLOURS", value_delimiter = ',')]
+    pub keep: Option<Vec<String>>,
+
+    /// Partly transparent pixels: composite over the background, or keep alpha [default: composite].
+    #[arg(long, value_enum, value_name = "MODE")]
+    pub alpha: Option<AlphaArg>,
+
+    /// Background for compositing partly transparent pixels [default: #ffffff].
+    #[arg(long, value_name = "COLOUR")]
+    pub background: Option<String>,
+
+    /// Order of the palette entries [default: frequency].
+    #[arg(long, value_enum, value_name = "ORDER")]
+    pub order: Option<OrderArg>,
+
+    /// Refuse images with more pixels than this [default: 100000000].
+    #[arg(long, value_name = "N")]
+    pub max_pixels: Option<u64>,
+}
+
+impl ColourArgs {
+    /// True when any palette option was given.
+    pub fn any(&self) -> bool {
+        self.space.is_some()
+            || self.display.is_some()
+            || self.keep.is_some()
+            || self.alpha.is_some()
+            || self.background.is_some()
+            || self.order.is_some()
+            || self.max_pixels.is_some()
+    }
 }
 
 /// Reading CSV records.
@@ -144,6 +250,46 @@ pub struct TrainArgs {
     #[command(flatten)]
     pub kmeans: KmeansArgs,
 
+    #[command(flatten)]
+    pub colour: ColourArgs,
+
+    /// Print one JSON object instead of a table.
+    #[arg(long)]
+    pub json: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct PaletteArgs {
+    /// The image (PNG, JPEG, BMP, TIFF or WebP).
+    #[arg(value_name = "IMAGE")]
+    pub image: PathBuf,
+
+    /// Palette entries (2 to 256 for a PNG).
+    #[arg(long, short = 'k', value_name = "K")]
+    pub size: usize,
+
+    /// Where to write the indexed PNG.
+    #[arg(long, short, value_name = "OUT.png")]
+    pub out: PathBuf,
+
+    /// Dithering [default: none].
+    #[arg(long, value_enum, value_name = "METHOD", default_value = "none")]
+    pub dither: DitherArg,
+
+    /// Also write a C header with the palette in the display format and the packed pixels.
+    #[arg(long, value_name = "OUT.h")]
+    pub c_source: Option<PathBuf>,
+
+    /// Also write the packed pixels alone (same layout as in the C header).
+    #[arg(long, value_name = "OUT.bin")]
+    pub raw: Option<PathBuf>,
+
+    #[command(flatten)]
+    pub colour: ColourArgs,
+
+    #[command(flatten)]
+    pub kmeans: KmeansArgs,
+
     /// Print one JSON object instead of a table.
     #[arg(long)]
     pub json: bool,
@@ -151,9 +297,17 @@ pub struct TrainArgs {
 
 #[derive(Debug, Args)]
 pub struct EncodeArgs {
-    /// CSV file with the codebook's columns (read as a stream).
+    /// CSV file with the codebook's columns (read as a stream), or an image for a palette codebook.
     #[arg(value_name = "INPUT")]
     pub input: PathBuf,
+
+    /// Dithering, for images [default: none].
+    #[arg(long, value_enum, value_name = "METHOD")]
+    pub dither: Option<DitherArg>,
+
+    /// Refuse images with more pixels than this [default: 100000000].
+    #[arg(long, value_name = "N")]
+    pub max_pixels: Option<u64>,
 
     /// The codebook to encode with.
     #[arg(long, short, value_name = "BOOK")]
@@ -181,7 +335,7 @@ pub struct DecodeArgs {
     #[arg(long, short, value_name = "BOOK")]
     pub book: PathBuf,
 
-    /// Where to write the rebuilt records (CSV).
+    /// Where to write the rebuilt records (CSV) or image (PNG).
     #[arg(long, short, value_name = "FILE")]
     pub out: PathBuf,
 

@@ -30,6 +30,32 @@ pub fn run(a: DecodeArgs) -> Result<()> {
     format::check_stream_matches(&header, &book)
         .with_context(|| format!("stream {stream_name} with codebook {book_name}"))?;
     let out_name = a.out.display().to_string();
+    if let Some(info) = header.image {
+        let bytes = super::palette::decode_image(&header, &indices, &book, &a.out)?;
+        let seconds = started.elapsed().as_secs_f64();
+        if a.json {
+            return print_json(&json!({
+                "size": book.size(),
+                "dimension": book.dimension,
+                "vectors": indices.len(),
+                "width": info.width,
+                "height": info.height,
+                "output_bytes": bytes,
+                "out": out_name,
+                "seconds": seconds,
+            }));
+        }
+        return print_pairs(&[
+            (
+                "image",
+                format!(
+                    "{out_name} ({}×{} pixels, {bytes} bytes)",
+                    info.width, info.height
+                ),
+            ),
+            ("time", secs(seconds)),
+        ]);
+    }
     let file = AtomicFile::create(&a.out).with_context(|| format!("writing {out_name}"))?;
     let mut writer = BufWriter::new(file);
     let rows = decode_to_writer(&header, &indices, &book, &mut writer)

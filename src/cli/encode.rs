@@ -25,6 +25,12 @@ pub fn run(a: EncodeArgs) -> Result<()> {
     let opts = csv_options(&a.read, None)?;
     let book_name = a.book.display().to_string();
     let book = format::read_codebook(&a.book).with_context(|| format!("codebook {book_name}"))?;
+    if matches!(book.meaning, vqforge::codebook::Meaning::Pixels(_)) {
+        return super::palette::encode_image(&a, &book);
+    }
+    if a.dither.is_some() || a.max_pixels.is_some() {
+        return usage("--dither and --max-pixels apply to images encoded with a palette");
+    }
     let layout = layout_of(&book).with_context(|| format!("codebook {book_name}"))?;
     let name = a.input.display().to_string();
     let file = std::fs::File::open(&a.input).with_context(|| format!("opening input {name}"))?;

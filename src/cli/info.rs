@@ -43,11 +43,26 @@ fn codebook(book: &Codebook, file_bytes: usize, as_json: bool) -> Result<()> {
     let t = &book.training;
     let layout = match &book.meaning {
         Meaning::Records(l) => Some(l),
-        Meaning::Plain => None,
+        Meaning::Plain | Meaning::Pixels(_) => None,
+    };
+    let pixels = match &book.meaning {
+        Meaning::Pixels(p) => Some(p),
+        _ => None,
     };
     if as_json {
-        let meaning = match layout {
-            Some(l) => json!({
+        let meaning = match (layout, pixels) {
+            (_, Some(p)) => {
+                let palette = vqforge::palette::Palette::from_codebook(book)?;
+                json!({
+                    "kind": "palette",
+                    "space": p.space.name(),
+                    "display": p.display.name(),
+                    "transparent_entry": p.transparent_entry,
+                    "pinned": p.pinned.iter().map(|c| vqforge::palette::hex(*c)).collect::<Vec<_>>(),
+                    "palette": palette.entries.iter().map(|e| vqforge::palette::hex([e[0], e[1], e[2]])).collect::<Vec<_>>(),
+                })
+            }
+            (Some(l), None) => json!({
                 "kind": "records",
                 "columns": l.columns,
                 "frame": l.frame,
@@ -55,7 +70,7 @@ fn codebook(book: &Codebook, file_bytes: usize, as_json: bool) -> Result<()> {
                 "scales": l.scales.iter().map(|s| json!({"offset": s.offset, "factor": s.factor})).collect::<Vec<_>>(),
                 "time_column": l.time_column,
             }),
-            None => json!({"kind": "plain"}),
+            (None, None) => json!({"kind": "plain"}),
         };
         return print_json(&json!({
             "file": "codebook",
@@ -92,6 +107,31 @@ fn codebook(book: &Codebook, file_bytes: usize, as_json: bool) -> Result<()> {
         pairs.push((
             "time column",
             l.time_column.clone().unwrap_or_else(|| "none".into()),
+        ));
+    }
+    if let Some(p) = pixels {
+        let palette = vqforge::palette::Palette::from_codebook(book)?;
+        pairs.push((
+            "palette",
+            format!(
+                "for {}, fitted in {}{}",
+                p.display.name(),
+                p.space.name(),
+                if p.transparent_entry {
+                    ", entry 0 transparent"
+                } else {
+                    ""
+                }
+            ),
+        ));
+        pairs.push((
+            "colours",
+            palette
+                .entries
+                .iter()
+                .map(|e| vqforge::palette::hex([e[0], e[1], e[2]]))
+                .collect::<Vec<_>>()
+                .join(" "),
         ));
     }
     pairs.push((
@@ -146,6 +186,7 @@ fn stream(header: &StreamHeader, indices: &[u32], file_bytes: usize, as_json: bo
             "codewords_used": used,
             "codebook_fingerprint": format!("{:08x}", header.codebook_fingerprint),
             "records": records,
+            "image": header.image.map(|i| json!({"width": i.width, "height": i.height})),
         }));
     }
     let mut pairs = vec![
@@ -162,6 +203,9 @@ fn stream(header: &StreamHeader, indices: &[u32], file_bytes: usize, as_json: bo
             format!("{:08x}", header.codebook_fingerprint),
         ),
     ];
+    if let Some(i) = &header.image {
+        pairs.push(("image", format!("{}×{} pixels", i.width, i.height)));
+    }
     if let Some(r) = &header.records {
         pairs.push(("rows", r.rows.to_string()));
         pairs.push((

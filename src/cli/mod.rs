@@ -7,6 +7,7 @@ mod demo;
 mod encode;
 mod info;
 mod output;
+mod palette;
 mod progress;
 mod train;
 
@@ -70,6 +71,7 @@ pub fn run() -> Result<ExitCode> {
         Command::Train(a) => train::run(a),
         Command::Encode(a) => encode::run(a),
         Command::Decode(a) => decode::run(a),
+        Command::Palette(a) => palette::run(a),
         Command::Info(a) => info::run(a),
         Command::Demo(a) => demo::run(a),
     }?;

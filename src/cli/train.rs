@@ -100,6 +100,22 @@ pub fn columns_table(e: &RecordError) -> Vec<Vec<String>> {
 }
 
 pub fn run(a: TrainArgs) -> Result<()> {
+    let images = a
+        .inputs
+        .iter()
+        .filter(|p| super::palette::is_image(p))
+        .count();
+    if images == a.inputs.len() {
+        return super::palette::train_images(a);
+    }
+    if images > 0 {
+        return usage(
+            "the inputs mix images and CSV files; train a palette and a record codebook separately",
+        );
+    }
+    if a.colour.any() {
+        return usage("palette options (--space, --display, --keep, --alpha, --background, --order, --max-pixels) apply to images, not CSV records");
+    }
     let started = Instant::now();
     let opts = csv_options(&a.read, Some(&a.shape))?;
     let config = train_config(a.size, &a.kmeans)?.check()?;

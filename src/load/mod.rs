@@ -1,8 +1,10 @@
-//! Loading: turns input files into vectors. This part owns CSV records:
-//! reading a table of numbers ([`read_table`]), choosing columns, the time
-//! column, missing values, scaling ([`fit_scales`]), joining rows into
-//! framing windows ([`to_vectors`]) and reading large files in bounded
-//! memory ([`RecordStream`]).
+//! Loading: turns input files into vectors. It owns images: decoding PNG,
+//! JPEG, BMP, TIFF and WebP bytes into 8-bit RGBA ([`read_image`]) within
+//! [`ImageLimits`], and counting distinct colours ([`colour_histogram`]).
+//! And it owns CSV records: reading a table of numbers ([`read_table`]),
+//! choosing columns, the time column, missing values, scaling
+//! ([`fit_scales`]), joining rows into framing windows ([`to_vectors`]) and
+//! reading large files in bounded memory ([`RecordStream`]).
 //!
 //! It never trains, encodes or writes files, and never prints: anything the
 //! user should hear about (skipped columns, dropped rows, constant columns,
@@ -38,12 +40,14 @@
 
 mod cells;
 mod frame;
+mod image;
 mod options;
 mod scale;
 mod stream;
 mod table;
 mod time;
 
+pub use self::image::{colour_histogram, read_image, ImageLimits, RgbaImage};
 pub use frame::{check_columns, frames_of, to_vectors};
 pub use options::{CsvOptions, Missing, TimeChoice};
 pub use scale::{fit_layout, fit_scales, FittedLayout, ScaleFit};

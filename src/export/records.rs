@@ -1,8 +1,7 @@
-//! Writing results for the user. This part owns decoded records: undoing
-//! the scaling of decoded vectors ([`undo_scaling`]) and writing rows as
-//! CSV ([`RecordCsvWriter`], [`write_records_csv`]), with the time column
-//! rebuilt from a regular axis or a row number. Never decodes, trains or
-//! measures.
+//! Decoded records: undoing the scaling of decoded vectors
+//! ([`undo_scaling`]) and writing rows as CSV ([`RecordCsvWriter`],
+//! [`write_records_csv`]), with the time column rebuilt from a regular axis
+//! or a row number. Never decodes, trains or measures.
 
 use std::io::Write;
 

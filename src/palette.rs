@@ -1,0 +1,751 @@
+//! Palettes for small displays: images → weighted unique colours in a
+//! working colour space → a codebook whose every entry the display can show
+//! exactly → indices per pixel (optionally dithered) → error figures in
+//! 8-bit sRGB and CIEDE2000. Pure: works on decoded images in memory; never
+//! opens files (see [`crate::load`] and [`crate::export`]).
+
+use std::collections::HashMap;
+
+use serde::{Deserialize, Serialize};
+
+use crate::codebook::{Codebook, Meaning, TrainingFacts};
+use crate::colour::{delta_e2000_rgb8, rgb8_to_lab, ColourSpace, DisplayFormat, Grid};
+use crate::encode::Encoder;
+use crate::error::{Error, ErrorKind, Result};
+use crate::kmeans::{train_constrained, CheckedTrainConfig, Constraint, TrainEvent, TrainReport};
+use crate::load::{colour_histogram, RgbaImage};
+use crate::metrics::psnr_db;
+use crate::vectors::VectorSet;
+
+const STAGE: &str = "building palette";
+
+/// What happens to partly transparent pixels.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+pub enum AlphaMode {
+    /// Composite over an opaque background colour (8-bit sRGB), then train
+    /// on the result. Fully transparent pixels still get the reserved entry.
+    Composite { background: [u8; 3] },
+    /// Train on RGBA: alpha is a fourth component, scaled to the colour
+    /// components' range (see [`alpha_scale`]).
+    Keep,
+}
+
+/// Error diffusion or ordered dithering while mapping pixels to the palette.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Dither {
+    /// Every pixel takes its nearest palette entry.
+    None,
+    /// Floyd & Steinberg (1976) error diffusion (7/16, 3/16, 5/16, 1/16) in
+    /// the working space, serpentine scan.
+    FloydSteinberg,
+    /// Ordered dithering with the 4 × 4 Bayer matrix.
+    Bayer4,
+    /// Ordered dithering with the 8 × 8 Bayer matrix.
+    Bayer8,
+}
+
+/// Order of the palette entries in the output.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PaletteOrder {
+    /// Most used first.
+    Frequency,
+    /// Darkest first (CIELAB L*).
+    Lightness,
+}
+
+/// What the codewords of a palette codebook mean.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PixelLayout {
+    /// The working space the codewords live in.
+    pub space: ColourSpace,
+    /// The display format every entry is exactly showable on.
+    pub display: DisplayFormat,
+    /// How alpha was handled.
+    pub alpha: AlphaMode,
+    /// Entry 0 is reserved for fully transparent pixels (alpha 0 in tRNS).
+    pub transparent_entry: bool,
+    /// Pinned colours the user asked for (8-bit sRGB), all in the palette.
+    pub pinned: Vec<[u8; 3]>,
+}
+
+impl PixelLayout {
+    /// Components per codeword: 3, or 4 with alpha kept.
+    pub fn dimension(&self) -> usize {
+        match self.alpha {
+            AlphaMode::Keep => 4,
+            AlphaMode::Composite { .. } => 3,
+        }
+    }
+}
+
+/// Multiplier that puts alpha (0..255) on the scale of the working space's
+/// components: 1 for sRGB and linear (0..255), 100/255 for CIELAB and Oklab
+/// (lightness 0..100).
+pub fn alpha_scale(space: ColourSpace) -> f32 {
+    match space {
+        ColourSpace::Srgb | ColourSpace::Linear => 1.0,
+        ColourSpace::Lab | ColourSpace::Oklab => 100.0 / 255.0,
+    }
+}
+
+/// Palette parameters with documented defaults.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PaletteConfig {
+    /// Palette entries in all, the reserved transparent entry included.
+    pub size: usize,
+    /// Working space. Default [`DEFAULT_SPACE`].
+    pub space: ColourSpace,
+    /// Display format. Default RGB888.
+    pub display: DisplayFormat,
+    /// Colours that must be in the palette. Default none.
+    pub keep: Vec<[u8; 3]>,
+    /// Default: composite over white.
+    pub alpha: AlphaMode,
+    /// Default: most used first.
+    pub order: PaletteOrder,
+}
+
+/// The working space used unless another is chosen (see the README for the
+/// measurements behind it).
+pub const DEFAULT_SPACE: ColourSpace = ColourSpace::Oklab;
+
+impl PaletteConfig {
+    /// Defaults for a palette of `size` entries.
+    pub fn new(size: usize) -> Self {
+        PaletteConfig {
+            size,
+            space: DEFAULT_SPACE,
+            display: DisplayFormat::Rgb888,
+            keep: Vec::new(),
+            alpha: AlphaMode::Composite {
+                background: [255, 255, 255],
+            },
+            order: PaletteOrder::Frequency,
+        }
+    }
+
+    /// Checks the rules that do not depend on the image: size ≥ 1, pinned
+    /// colours showable on the display and fewer than the size, no duplicates.
+    pub fn check(&self) -> Result<()> {
+        let bad = |m: String| Err(Error::new(STAGE, ErrorKind::InvalidParameter(m)));
+        if self.size == 0 {
+            return Err(Error::new(STAGE, ErrorKind::ZeroSize));
+        }
+        for c in &self.keep {
+            let shown = self.display.snap(*c);
+            if shown != *c {
+                return bad(format!(
+                    "pinned colour {} cannot be shown exactly on {}; the nearest it can show is {}",
+                    hex(*c),
+                    self.display.name(),
+                    hex(shown)
+                ));
+            }
+        }
+        for (i, c) in self.keep.iter().enumerate() {
+            if self.keep[..i].contains(c) {
+                return bad(format!("pinned colour {} is given twice", hex(*c)));
+            }
+        }
+        if self.keep.len() > self.size {
+            return bad(format!(
+                "{} pinned colours do not fit in a palette of {}",
+                self.keep.len(),
+                self.size
+            ));
+        }
+        Ok(())
+    }
+}
+
+/// `#rrggbb`.
+pub fn hex(c: [u8; 3]) -> String {
+    format!("#{:02x}{:02x}{:02x}", c[0], c[1], c[2])
+}
+
+/// Parses `#rrggbb` or `rrggbb` (case-insensitive).
+pub fn parse_hex(text: &str) -> Result<[u8; 3]> {
+    let t = text.trim();
+    let digits = t.strip_prefix('#').unwrap_or(t);
+    let bad = || {
+        Error::new(
+            "reading colour",
+            ErrorKind::InvalidParameter(format!(
+                "\"{text}\" is not a colour; write it as #rrggbb, e.g. #ff8000"
+            )),
+        )
+    };
+    if digits.len() != 6 || !digits.bytes().all(|b| b.is_ascii_hexdigit()) {
+        return Err(bad());
+    }
+    let v = u32::from_str_radix(digits, 16).map_err(|_| bad())?;
+    Ok([(v >> 16) as u8, (v >> 8) as u8, v as u8])
+}
+
+/// The pixel as it is after alpha handling: composited RGB and the alpha
+/// kept (255 when composited).
+fn handled(px: [u8; 4], alpha: AlphaMode) -> [u8; 4] {
+    match alpha {
+        AlphaMode::Keep => px,
+        AlphaMode::Composite { background } => {
+            let a = px[3] as u32;
+            let mix = |c: u8, b: u8| ((c as u32 * a + b as u32 * (255 - a) + 127) / 255) as u8;
+            [
+                mix(px[0], background[0]),
+                mix(px[1], background[1]),
+                mix(px[2], background[2]),
+                255,
+            ]
+        }
+    }
+}
+
+fn working(px: [u8; 4], layout: &PixelLayout, out: &mut Vec<f32>) {
+    out.extend_from_slice(&layout.space.to_space([px[0], px[1], px[2]]));
+    if layout.alpha == AlphaMode::Keep {
+        out.push(px[3] as f32 * alpha_scale(layout.space));
+    }
+}
+
+/// What training a palette produced.
+#[derive(Debug, Clone)]
+pub struct PaletteTraining {
+    /// The palette codebook (entry 0 transparent when reserved).
+    pub codebook: Codebook,
+    /// The k-means report for the visible entries.
+    pub report: TrainReport,
+    /// Pixels in all the images.
+    pub pixels: u64,
+    /// Distinct colours after alpha handling (transparent pixels excluded).
+    pub distinct_colours: usize,
+    /// Messages for the user.
+    pub notices: Vec<String>,
+}
+
+/// Trains one palette for all `images`.
+pub fn train_palette(
+    images: &[RgbaImage],
+    config: &PaletteConfig,
+    train: &CheckedTrainConfig,
+    observe: &(dyn Fn(TrainEvent) + Sync),
+) -> Result<PaletteTraining> {
+    config.check()?;
+    let mut counts: HashMap<[u8; 4], u64> = HashMap::new();
+    let mut transparent = 0u64;
+    let mut pixels = 0u64;
+    for img in images {
+        pixels += img.pixels.len() as u64;
+        for (c, n) in colour_histogram(img) {
+            if c[3] == 0 {
+                transparent += n;
+            } else {
+                *counts.entry(handled(c, config.alpha)).or_insert(0) += n;
+            }
+        }
+    }
+    let mut colours: Vec<([u8; 4], u64)> = counts.into_iter().collect();
+    colours.sort_unstable();
+    let layout = PixelLayout {
+        space: config.space,
+        display: config.display,
+        alpha: config.alpha,
+        transparent_entry: transparent > 0,
+        pinned: config.keep.clone(),
+    };
+    let mut notices = Vec::new();
+    let reserved = usize::from(layout.transparent_entry);
+    if colours.is_empty() {
+        return Err(Error::new(
+            STAGE,
+            ErrorKind::Shape(
+                "every pixel is fully transparent; there are no colours to fit".into(),
+            ),
+        ));
+    }
+    if config.size <= reserved {
+        return Err(Error::new(
+            STAGE,
+            ErrorKind::InvalidParameter(format!(
+                "the image has fully transparent pixels, which take one palette entry; a palette of {} leaves none for colours",
+                config.size
+            )),
+        ));
+    }
+    if config.keep.len() + reserved > config.size {
+        return Err(Error::new(
+            STAGE,
+            ErrorKind::InvalidParameter(format!(
+                "{} pinned colours and the transparent entry do not fit in a palette of {}",
+                config.keep.len(),
+                config.size
+            )),
+        ));
+    }
+    if reserved == 1 {
+        notices.push(format!(
+            "{transparent} fully transparent pixels share palette entry 0 (alpha 0)"
+        ));
+    }
+    let d = layout.dimension();
+    let mut data = Vec::with_capacity(colours.len() * d);
+    for (c, _) in &colours {
+        working(*c, &layout, &mut data);
+    }
+    let weights: Vec<f64> = colours.iter().map(|(_, n)| *n as f64).collect();
+    let vectors = VectorSet::new(d, data)?.with_weights(weights)?;
+
+    let mut fixed = Vec::new();
+    for c in &config.keep {
+        working([c[0], c[1], c[2], 255], &layout, &mut fixed);
+    }
+    let grid = Grid::new(config.space, config.display);
+    let ascale = alpha_scale(config.space);
+    let snap = |v: &mut [f32]| {
+        let s = grid.snap_working(&[v[0], v[1], v[2]]);
+        v[..3].copy_from_slice(&s);
+        if v.len() == 4 {
+            let a = (v[3] / ascale).round().clamp(1.0, 255.0);
+            v[3] = a * ascale;
+        }
+    };
+    let constraint = Constraint {
+        fixed: &fixed,
+        snap: Some(&snap),
+    };
+    let mut cfg = train.get().clone();
+    cfg.size = config.size - reserved;
+    let checked = cfg.check()?;
+    let trained = train_constrained(&vectors, &checked, constraint, observe)?;
+    notices.extend(trained.report.notices.iter().cloned());
+
+    // Order the visible entries, then put the transparent one first.
+    let k = trained.codewords.len() / d;
+    let encoder = Encoder::new(&trained.codewords, d)?;
+    let labels = encoder.encode(&vectors)?;
+    let mut use_count = vec![0u64; k];
+    for (l, (_, n)) in labels.iter().zip(&colours) {
+        use_count[*l as usize] += n;
+    }
+    let rgb: Vec<[u8; 3]> = trained
+        .codewords
+        .chunks_exact(d)
+        .map(|c| config.space.to_rgb8([c[0], c[1], c[2]]))
+        .collect();
+    let mut order: Vec<usize> = (0..k).collect();
+    match config.order {
+        PaletteOrder::Frequency => {
+            order.sort_by(|&a, &b| use_count[b].cmp(&use_count[a]).then(a.cmp(&b)))
+        }
+        PaletteOrder::Lightness => order.sort_by(|&a, &b| {
+            rgb8_to_lab(rgb[a])[0]
+                .total_cmp(&rgb8_to_lab(rgb[b])[0])
+                .then(a.cmp(&b))
+        }),
+    }
+    let mut codewords = Vec::with_capacity((k + reserved) * d);
+    if reserved == 1 {
+        let bg = match config.alpha {
+            AlphaMode::Composite { background } => background,
+            AlphaMode::Keep => [0, 0, 0],
+        };
+        working([bg[0], bg[1], bg[2], 0], &layout, &mut codewords);
+    }
+    for &i in &order {
+        codewords.extend_from_slice(&trained.codewords[i * d..(i + 1) * d]);
+    }
+    let report = trained.report;
+    let codebook = Codebook {
+        dimension: d,
+        codewords,
+        meaning: Meaning::Pixels(layout),
+        training: TrainingFacts {
+            seed: report.seed,
+            restarts: report.restart_distortions.len() as u32,
+            seeding: report.seeding,
+            iterations: report.iterations,
+            stopped_by: report.stopped_by,
+            vectors: report.total_weight.round() as u64,
+            distinct_vectors: report.distinct_vectors as u64,
+            mse_scaled: report.mse_per_component,
+        },
+    };
+    codebook.validate()?;
+    Ok(PaletteTraining {
+        codebook,
+        report,
+        pixels,
+        distinct_colours: colours.len(),
+        notices,
+    })
+}
+
+/// A palette ready to map pixels: the entries as 8-bit RGBA and an encoder
+/// over the visible ones.
+#[derive(Debug, Clone)]
+pub struct Palette {
+    layout: PixelLayout,
+    /// Every entry as 8-bit sRGB plus alpha, in index order.
+    pub entries: Vec<[u8; 4]>,
+    codewords: Vec<f32>,
+    encoder: Encoder,
+    first_visible: usize,
+}
+
+impl Palette {
+    /// The palette of a pixel codebook.
+    pub fn from_codebook(codebook: &Codebook) -> Result<Palette> {
+        let Meaning::Pixels(layout) = &codebook.meaning else {
+            return Err(Error::new(
+                "checking codebook",
+                ErrorKind::Mismatch("this codebook was not trained on images".into()),
+            ));
+        };
+        let d = codebook.dimension;
+        if d != layout.dimension() {
+            return Err(Error::new(
+                "checking codebook",
+                ErrorKind::Format(format!(
+                    "a palette codebook with dimension {d} does not match its alpha mode"
+                )),
+            ));
+        }
+        let first_visible = usize::from(layout.transparent_entry);
+        if codebook.size() <= first_visible {
+            return Err(Error::new(
+                "checking codebook",
+                ErrorKind::Format("the palette has no visible entries".into()),
+            ));
+        }
+        let ascale = alpha_scale(layout.space);
+        let entries: Vec<[u8; 4]> = codebook
+            .codewords
+            .chunks_exact(d)
+            .enumerate()
+            .map(|(i, c)| {
+                let [r, g, b] = layout.space.to_rgb8([c[0], c[1], c[2]]);
+                let a = if i < first_visible {
+                    0
+                } else if d == 4 {
+                    (c[3] / ascale).round().clamp(0.0, 255.0) as u8
+                } else {
+                    255
+                };
+                [r, g, b, a]
+            })
+            .collect();
+        let codewords = codebook.codewords[first_visible * d..].to_vec();
+        let encoder = Encoder::new(&codewords, d)?;
+        Ok(Palette {
+            layout: layout.clone(),
+            entries,
+            codewords,
+            encoder,
+            first_visible,
+        })
+    }
+
+    /// What the codewords mean.
+    pub fn layout(&self) -> &PixelLayout {
+        &self.layout
+    }
+
+    /// Number of entries, the transparent one included.
+    pub fn len(&self) -> usize {
+        self.entries.len()
+    }
+
+    /// Always false: a palette has at least one visible entry.
+    pub fn is_empty(&self) -> bool {
+        self.entries.is_empty()
+    }
+
+    /// RGB of every entry.
+    pub fn rgb(&self) -> Vec<[u8; 3]> {
+        self.entries.iter().map(|e| [e[0], e[1], e[2]]).collect()
+    }
+
+    /// Alpha of every entry, or `None` when all are opaque.
+    pub fn alpha(&self) -> Option<Vec<u8>> {
+        self.entries
+            .iter()
+            .any(|e| e[3] < 255)
+            .then(|| self.entries.iter().map(|e| e[3]).collect())
+    }
+
+    fn reserved_for(&self, px: [u8; 4]) -> Option<u32> {
+        (px[3] == 0 && self.layout.transparent_entry).then_some(0)
+    }
+
+    fn nearest(&self, v: &[f32]) -> u32 {
+        self.encoder.nearest(v).index + self.first_visible as u32
+    }
+
+    /// Palette index of every pixel of `image`, row by row.
+    pub fn map_image(&self, image: &RgbaImage, dither: Dither) -> Result<Vec<u32>> {
+        if image.pixels.len() != image.width as usize * image.height as usize {
+            return Err(Error::new(
+                "mapping pixels",
+                ErrorKind::Shape("the pixel count does not match width × height".into()),
+            ));
+        }
+        Ok(match dither {
+            Dither::None => self.map_plain(image),
+            Dither::FloydSteinberg => self.map_diffused(image),
+            Dither::Bayer4 => self.map_ordered(image, 4),
+            Dither::Bayer8 => self.map_ordered(image, 8),
+        })
+    }
+
+    fn map_plain(&self, image: &RgbaImage) -> Vec<u32> {
+        let hist = colour_histogram(image);
+        let d = self.layout.dimension();
+        let mut v = Vec::with_capacity(d);
+        let mut lookup: HashMap<[u8; 4], u32> = HashMap::with_capacity(hist.len());
+        for (c, _) in hist {
+            let idx = match self.reserved_for(c) {
+                Some(i) => i,
+                None => {
+                    v.clear();
+                    working(handled(c, self.layout.alpha), &self.layout, &mut v);
+                    self.nearest(&v)
+                }
+            };
+            lookup.insert(c, idx);
+        }
+        image.pixels.iter().map(|p| lookup[p]).collect()
+    }
+
+    fn map_diffused(&self, image: &RgbaImage) -> Vec<u32> {
+        let (w, h) = (image.width as usize, image.height as usize);
+        let d = self.layout.dimension();
+        let mut out = vec![0u32; w * h];
+        let mut err_here = vec![0.0f32; (w + 2) * d];
+        let mut err_next = vec![0.0f32; (w + 2) * d];
+        let mut v = Vec::with_capacity(d);
+        for y in 0..h {
+            let forward = y % 2 == 0;
+            for step in 0..w {
+                let x = if forward { step } else { w - 1 - step };
+                let px = image.pixels[y * w + x];
+                if let Some(i) = self.reserved_for(px) {
+                    out[y * w + x] = i;
+                    continue;
+                }
+                v.clear();
+                working(handled(px, self.layout.alpha), &self.layout, &mut v);
+                let slot = (x + 1) * d;
+                for c in 0..d {
+                    v[c] += err_here[slot + c];
+                }
+                let idx = self.nearest(&v);
+                out[y * w + x] = idx;
+                let cw = &self.codewords[(idx as usize - self.first_visible) * d..][..d];
+                // Ahead in the scan direction, and the three pixels below.
+                let (ahead, behind) = if forward {
+                    (slot + d, slot - d)
+                } else {
+                    (slot - d, slot + d)
+                };
+                for c in 0..d {
+                    let e = v[c] - cw[c];
+                    err_here[ahead + c] += e * (7.0 / 16.0);
+                    err_next[behind + c] += e * (3.0 / 16.0);
+                    err_next[slot + c] += e * (5.0 / 16.0);
+                    err_next[ahead + c] += e * (1.0 / 16.0);
+                }
+            }
+            std::mem::swap(&mut err_here, &mut err_next);
+            err_next.iter_mut().for_each(|e| *e = 0.0);
+        }
+        out
+    }
+
+    /// Typical distance between neighbouring palette entries: the median of
+    /// each entry's distance to its nearest other entry. Ordered dithering
+    /// spreads its thresholds over this distance.
+    fn spacing(&self) -> f32 {
+        let d = self.layout.dimension();
+        let k = self.codewords.len() / d;
+        if k < 2 {
+            return 0.0;
+        }
+        let mut nn: Vec<f32> = (0..k)
+            .map(|i| {
+                (0..k)
+                    .filter(|&j| j != i)
+                    .map(|j| {
+                        crate::encode::distance_sq(
+                            &self.codewords[i * d..(i + 1) * d],
+                            &self.codewords[j * d..(j + 1) * d],
+                        )
+                    })
+                    .fold(f32::INFINITY, f32::min)
+                    .sqrt()
+            })
+            .collect();
+        nn.sort_by(f32::total_cmp);
+        nn[k / 2]
+    }
+
+    fn map_ordered(&self, image: &RgbaImage, n: usize) -> Vec<u32> {
+        let matrix = bayer(n);
+        let spread = self.spacing();
+        let (w, h) = (image.width as usize, image.height as usize);
+        let d = self.layout.dimension();
+        let mut v = Vec::with_capacity(d);
+        let mut out = Vec::with_capacity(w * h);
+        for y in 0..h {
+            for x in 0..w {
+                let px = image.pixels[y * w + x];
+                if let Some(i) = self.reserved_for(px) {
+                    out.push(i);
+                    continue;
+                }
+                v.clear();
+                working(handled(px, self.layout.alpha), &self.layout, &mut v);
+                let t = (matrix[(y % n) * n + x % n] as f32 + 0.5) / (n * n) as f32 - 0.5;
+                // The same offset on every colour component (not alpha).
+                for c in v.iter_mut().take(3) {
+                    *c += t * spread;
+                }
+                out.push(self.nearest(&v));
+            }
+        }
+        out
+    }
+}
+
+/// The n × n Bayer threshold matrix (n a power of two), values 0..n²−1,
+/// built by the usual recursion M(2n) = [4M, 4M+2; 4M+3, 4M+1] (Bayer 1973).
+pub fn bayer(n: usize) -> Vec<u32> {
+    let mut m = vec![0u32];
+    let mut size = 1;
+    while size < n {
+        let mut next = vec![0u32; 4 * size * size];
+        for y in 0..size {
+            for x in 0..size {
+                let v = 4 * m[y * size + x];
+                next[y * 2 * size + x] = v;
+                next[y * 2 * size + x + size] = v + 2;
+                next[(y + size) * 2 * size + x] = v + 3;
+                next[(y + size) * 2 * size + x + size] = v + 1;
+            }
+        }
+        m = next;
+        size *= 2;
+    }
+    m
+}
+
+/// How far a mapped image is from the original after alpha handling.
+/// Fully transparent pixels that got the transparent entry are exact and
+/// left out.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ImageError {
+    /// Pixels measured.
+    pub pixels: u64,
+    /// Mean squared error per channel in 8-bit sRGB values (R, G, B, and
+    /// alpha when it is kept).
+    pub mse: f64,
+    /// 10·log10(255² / mse); `None` when exact.
+    pub psnr_db: Option<f64>,
+    /// Mean CIEDE2000 difference per pixel.
+    pub delta_e2000_mean: f64,
+    /// 95th percentile of the per-pixel CIEDE2000 difference.
+    pub delta_e2000_p95: f64,
+}
+
+/// Measures `indices` (from [`Palette::map_image`]) against `image`.
+pub fn measure(image: &RgbaImage, indices: &[u32], palette: &Palette) -> Result<ImageError> {
+    if indices.len() != image.pixels.len() {
+        return Err(Error::new(
+            "measuring",
+            ErrorKind::Shape(format!(
+                "{} indices for {} pixels",
+                indices.len(),
+                image.pixels.len()
+            )),
+        ));
+    }
+    let keep = palette.layout.alpha == AlphaMode::Keep;
+    let channels = if keep { 4.0 } else { 3.0 };
+    let mut pairs: HashMap<([u8; 4], u32), u64> = HashMap::new();
+    for (p, &i) in image.pixels.iter().zip(indices) {
+        if palette.reserved_for(*p) == Some(i) {
+            continue;
+        }
+        *pairs
+            .entry((handled(*p, palette.layout.alpha), i))
+            .or_insert(0) += 1;
+    }
+    let mut sq = 0.0f64;
+    let mut n = 0u64;
+    let mut des: Vec<(f64, u64)> = Vec::with_capacity(pairs.len());
+    for ((c, i), count) in pairs {
+        let e = palette.entries.get(i as usize).ok_or_else(|| {
+            Error::new(
+                "measuring",
+                ErrorKind::Mismatch(format!("index {i} is beyond the palette")),
+            )
+        })?;
+        let used = if keep { 4 } else { 3 };
+        let s: f64 = (0..used)
+            .map(|ch| {
+                let d = c[ch] as f64 - e[ch] as f64;
+                d * d
+            })
+            .sum();
+        sq += s * count as f64;
+        n += count;
+        des.push((
+            delta_e2000_rgb8([c[0], c[1], c[2]], [e[0], e[1], e[2]]),
+            count,
+        ));
+    }
+    let mse = if n == 0 {
+        0.0
+    } else {
+        sq / (n as f64 * channels)
+    };
+    let mean = if n == 0 {
+        0.0
+    } else {
+        des.iter().map(|(d, c)| d * *c as f64).sum::<f64>() / n as f64
+    };
+    des.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let target = (0.95 * n as f64).ceil() as u64;
+    let mut seen = 0;
+    let mut p95 = 0.0;
+    for (d, c) in &des {
+        seen += c;
+        if seen >= target {
+            p95 = *d;
+            break;
+        }
+    }
+    Ok(ImageError {
+        pixels: n,
+        mse,
+        psnr_db: psnr_db(255.0, mse),
+        delta_e2000_mean: mean,
+        delta_e2000_p95: p95,
+    })
+}
+
+/// The pixels an index image stands for (8-bit RGBA).
+pub fn render(indices: &[u32], palette: &Palette) -> Result<Vec<[u8; 4]>> {
+    indices
+        .iter()
+        .map(|&i| {
+            palette.entries.get(i as usize).copied().ok_or_else(|| {
+                Error::new(
+                    "decoding pixels",
+                    ErrorKind::Format(format!(
+                        "index {i} is beyond the palette of {}",
+                        palette.entries.len()
+                    )),
+                )
+            })
+        })
+        .collect()
+}
