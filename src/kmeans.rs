@@ -453,7 +453,7 @@ pub fn train_constrained(
         };
         let work = unique.len().saturating_mul(cfg.size).saturating_mul(dim);
         let result = if work <= MOVE_REFINE_BUDGET {
-            refine_by_moves_core(&unique, &result, &opts, 100, constraint)?
+            refine_by_moves_core(&unique, &result, &opts, MOVE_PASSES, constraint)?
         } else if constraint.snap.is_some() {
             let mut snapped = lloyd_core(&unique, &result.codewords, &opts, constraint, &on_iter)?;
             snapped.iterations += result.iterations;
@@ -889,6 +889,11 @@ fn lloyd_core(
 /// moves ([`refine_by_moves`]); above it Lloyd alone is used, since one pass
 /// costs about as much as a Lloyd iteration and cannot run in parallel.
 pub const MOVE_REFINE_BUDGET: usize = 1 << 27;
+
+/// Passes over the data [`train`] allows the single-vector moves. Most of
+/// the gain comes in the first few passes; later ones move a handful of
+/// vectors each at the full cost of a pass.
+pub const MOVE_PASSES: u32 = 10;
 
 /// Polishes a Lloyd result by moving single vectors between clusters while
 /// that lowers the total distortion (the exact weighted criterion of
