@@ -107,7 +107,7 @@ pub struct PaletteConfig {
 
 /// The working space used unless another is chosen (see the README for the
 /// measurements behind it).
-pub const DEFAULT_SPACE: ColourSpace = ColourSpace::Oklab;
+pub const DEFAULT_SPACE: ColourSpace = ColourSpace::Lab;
 
 impl PaletteConfig {
     /// Defaults for a palette of `size` entries.

@@ -124,7 +124,7 @@ pub enum OrderArg {
 /// Palette options (images only).
 #[derive(Debug, Clone, Args)]
 pub struct ColourArgs {
-    /// Colour space the palette is fitted in [default: oklab].
+    /// Colour space the palette is fitted in [default: lab].
     #[arg(long, value_enum, value_name = "SPACE")]
     pub space: Option<SpaceArg>,
 
