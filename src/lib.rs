@@ -6,6 +6,9 @@
 //! indices and measures what was lost.
 //!
 //! ```text
+//!  image ─► load ─► RgbaImage ─► palette (unique colours, working space) ─► kmeans::train_constrained ─► Codebook
+//!                                   └─► Palette::map_image (k-d tree, dithering) ─► indices ─► export (PNG, C, raw)
+//!
 //!  CSV ─► load ─► RecordTable ─► VectorSet (scaled, framed) ─► kmeans::train ─► Codebook
 //!                                      │                                         │
 //!                                      ▼                                         ▼
