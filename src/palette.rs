@@ -522,6 +522,17 @@ impl Palette {
         let mut err_here = vec![0.0f32; (w + 2) * d];
         let mut err_next = vec![0.0f32; (w + 2) * d];
         let mut v = Vec::with_capacity(d);
+        // Diffused values are clamped to the palette's bounding box: an error
+        // the palette can never pay back (a colour outside its hull) would
+        // otherwise grow along the row and smear into streaks.
+        let mut lo = vec![f32::INFINITY; d];
+        let mut hi = vec![f32::NEG_INFINITY; d];
+        for cw in self.codewords.chunks_exact(d) {
+            for c in 0..d {
+                lo[c] = lo[c].min(cw[c]);
+                hi[c] = hi[c].max(cw[c]);
+            }
+        }
         for y in 0..h {
             let forward = y % 2 == 0;
             for step in 0..w {
@@ -535,7 +546,7 @@ impl Palette {
                 working(handled(px, self.layout.alpha), &self.layout, &mut v);
                 let slot = (x + 1) * d;
                 for c in 0..d {
-                    v[c] += err_here[slot + c];
+                    v[c] = (v[c] + err_here[slot + c]).clamp(lo[c], hi[c]);
                 }
                 let idx = self.nearest(&v);
                 out[y * w + x] = idx;
