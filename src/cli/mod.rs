@@ -4,6 +4,7 @@
 mod args;
 mod decode;
 mod demo;
+mod demo_images;
 mod encode;
 mod info;
 mod output;

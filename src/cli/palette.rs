@@ -97,7 +97,7 @@ pub fn dither_of(d: DitherArg) -> Dither {
     }
 }
 
-fn dither_name(d: Dither) -> &'static str {
+pub(super) fn dither_name(d: Dither) -> &'static str {
     match d {
         Dither::None => "none",
         Dither::FloydSteinberg => "floyd-steinberg",
@@ -175,7 +175,7 @@ fn spinner_observer(
     }
 }
 
-fn report_json(e: &ImageError) -> serde_json::Value {
+pub(super) fn report_json(e: &ImageError) -> serde_json::Value {
     json!({
         "mse": e.mse,
         "psnr_db": jnum(e.psnr_db),
@@ -199,7 +199,12 @@ fn error_pairs(e: &ImageError) -> Vec<(&'static str, String)> {
     ]
 }
 
-fn write_png(path: &Path, image: &RgbaImage, indices: &[u32], palette: &Palette) -> Result<u64> {
+pub(super) fn write_png(
+    path: &Path,
+    image: &RgbaImage,
+    indices: &[u32],
+    palette: &Palette,
+) -> Result<u64> {
     let name = path.display().to_string();
     let mut file = AtomicFile::create(path).with_context(|| format!("writing {name}"))?;
     let alpha = palette.alpha();
@@ -214,6 +219,51 @@ fn write_png(path: &Path, image: &RgbaImage, indices: &[u32], palette: &Palette)
     .with_context(|| format!("writing {name}"))?;
     file.commit().with_context(|| format!("writing {name}"))?;
     Ok(std::fs::metadata(path)?.len())
+}
+
+/// C source for an indexed image (see [`c_source`]): the palette packed in
+/// its display's format and `packed` rows (from [`pack_rows`]). `made_by`
+/// lines go into the top comment after the size and palette format.
+pub(super) fn c_text(
+    symbol: &str,
+    width: u32,
+    height: u32,
+    packed: &[u8],
+    palette: &Palette,
+    bits: u8,
+    made_by: &[String],
+) -> Result<String> {
+    let layout = palette.layout();
+    let display = layout.display;
+    let entries: Vec<u32> = palette.rgb().iter().map(|c| display.pack(*c)).collect();
+    let mut comment = vec![
+        format!(
+            "{}×{} pixels, {} palette entries, {} bits per pixel",
+            width,
+            height,
+            palette.len(),
+            bits
+        ),
+        format!(
+            "palette entries packed as {} ({} bits each)",
+            display.name(),
+            display.bits_per_pixel()
+        ),
+    ];
+    comment.extend_from_slice(made_by);
+    if layout.transparent_entry {
+        comment.push("entry 0 stands for fully transparent pixels".into());
+    }
+    Ok(c_source(&CImage {
+        symbol,
+        width,
+        height,
+        bits_per_pixel: bits,
+        palette: &entries,
+        palette_entry_bits: display.bits_per_pixel(),
+        pixels: packed,
+        comment_lines: &comment,
+    })?)
 }
 
 fn firmware_outputs(
@@ -231,47 +281,25 @@ fn firmware_outputs(
         write_atomic(raw, &packed).with_context(|| format!("writing {}", raw.display()))?;
     }
     if let Some(path) = &a.c_source {
-        let layout = palette.layout();
-        let display = layout.display;
-        let entries: Vec<u32> = palette.rgb().iter().map(|c| display.pack(*c)).collect();
         let stem = path
             .file_stem()
             .map(|s| s.to_string_lossy().to_string())
             .unwrap_or_else(|| "image".into());
-        let symbol = c_identifier(&stem);
-        let mut comment = vec![
-            format!(
-                "{}×{} pixels, {} palette entries, {} bits per pixel",
-                image.width,
-                image.height,
-                palette.len(),
-                bits
-            ),
-            format!(
-                "palette entries packed as {} ({} bits each)",
-                display.name(),
-                display.bits_per_pixel()
-            ),
-            format!(
-                "made by vqforge palette from {} (space {}, dither {})",
-                a.image.display(),
-                layout.space.name(),
-                dither_name(dither_of(a.dither))
-            ),
-        ];
-        if layout.transparent_entry {
-            comment.push("entry 0 stands for fully transparent pixels".into());
-        }
-        let text = c_source(&CImage {
-            symbol: &symbol,
-            width: image.width,
-            height: image.height,
-            bits_per_pixel: bits,
-            palette: &entries,
-            palette_entry_bits: display.bits_per_pixel(),
-            pixels: &packed,
-            comment_lines: &comment,
-        })?;
+        let made_by = [format!(
+            "made by vqforge palette from {} (space {}, dither {})",
+            a.image.display(),
+            palette.layout().space.name(),
+            dither_name(dither_of(a.dither))
+        )];
+        let text = c_text(
+            &c_identifier(&stem),
+            image.width,
+            image.height,
+            &packed,
+            palette,
+            bits,
+            &made_by,
+        )?;
         write_atomic(path, text.as_bytes())
             .with_context(|| format!("writing {}", path.display()))?;
     }
@@ -366,7 +394,7 @@ pub fn run(a: PaletteArgs) -> Result<()> {
     print_pairs(&pairs)
 }
 
-fn merge(into: &mut serde_json::Value, from: serde_json::Value) {
+pub(super) fn merge(into: &mut serde_json::Value, from: serde_json::Value) {
     if let (Some(a), serde_json::Value::Object(b)) = (into.as_object_mut(), from) {
         a.extend(b);
     }
