@@ -470,11 +470,23 @@ pub fn train_constrained(
         }
     }
     let (best_restart, result) = best.expect("at least one restart ran");
+    // A codebook never holds one codeword twice. Under a projection the
+    // allowed points near the data can run out (a grey display with fewer
+    // levels than k); a repeated codeword is never nearest (ties go to the
+    // lower index), so dropping it leaves the distortion as it is.
+    let codewords = distinct_codewords(&result.codewords, dim);
+    let size = codewords.len() / dim;
+    if size < cfg.size {
+        notices.push(format!(
+            "only {size} distinct codewords could be placed under the constraint; the codebook has {size} codewords instead of {}",
+            cfg.size
+        ));
+    }
     Ok(Trained {
         dimension: dim,
         report: TrainReport {
             requested_size: cfg.size,
-            size: result.codewords.len() / dim,
+            size,
             iterations: result.iterations,
             stopped_by: result.stopped_by,
             distortion: result.distortion,
@@ -487,8 +499,21 @@ pub fn train_constrained(
             distinct_vectors: distinct,
             notices,
         },
-        codewords: result.codewords,
+        codewords,
     })
+}
+
+/// The codewords without later repeats of an earlier one (bit-equal
+/// components), in their order; fixed codewords come first, so they stay.
+fn distinct_codewords(codewords: &[f32], dim: usize) -> Vec<f32> {
+    let mut seen: std::collections::HashSet<Vec<u32>> = std::collections::HashSet::new();
+    let mut out = Vec::with_capacity(codewords.len());
+    for c in codewords.chunks_exact(dim) {
+        if seen.insert(c.iter().map(|x| x.to_bits()).collect()) {
+            out.extend_from_slice(c);
+        }
+    }
+    out
 }
 
 /// Drops rows of weight 0 (they cannot pull a codeword) and refuses a set
@@ -719,7 +744,8 @@ fn assign(vectors: &VectorSet, codewords: &[f32], labels: &mut [u32]) -> Result<
 /// empty clusters: each empty codeword (lowest index first) moves onto the
 /// vector with the largest weighted squared error against the updated
 /// codewords, taken only from clusters that keep at least one other member,
-/// ties to the lowest vector index. Returns how many were repaired.
+/// ties to the lowest vector index; a vector whose allowed point is already
+/// a codeword is passed over for the next. Returns how many were repaired.
 fn update(
     vectors: &VectorSet,
     codewords: &mut [f32],
@@ -753,30 +779,32 @@ fn update(
     for &l in labels {
         members[l as usize] += 1;
     }
-    let mut err: Vec<f64> = (0..vectors.len())
+    let err: Vec<f64> = (0..vectors.len())
         .map(|i| {
             let l = labels[i] as usize;
             vectors.weight(i) * exact_sq(vectors.row(i), &codewords[l * d..(l + 1) * d])
         })
         .collect();
+    // Candidates by falling error, ties to the lower index. A vector passed
+    // over stays passed over: members only fall and taken points stay taken
+    // during the repair. Regression: a codeword whose first candidate's
+    // allowed point was taken used to stay a duplicate, so palettes for
+    // coarse displays came out with repeated entries.
+    let mut order: Vec<usize> = (0..vectors.len()).filter(|&i| err[i] > 0.0).collect();
+    order.sort_by(|&a, &b| err[b].total_cmp(&err[a]).then(a.cmp(&b)));
+    let mut candidates = order.into_iter();
     let mut repaired = 0;
     for e in empty {
-        let mut pick: Option<usize> = None;
-        for i in 0..vectors.len() {
-            if err[i] > 0.0
-                && members[labels[i] as usize] > 1
-                && pick.is_none_or(|p| err[i] > err[p])
-            {
-                pick = Some(i);
+        let placed = candidates.by_ref().find_map(|i| {
+            if members[labels[i] as usize] <= 1 {
+                return None;
             }
-        }
-        let Some(i) = pick else { break };
-        err[i] = 0.0;
-        let mut target = vectors.row(i).to_vec();
-        constraint.snap_one(&mut target);
-        if (0..k).any(|j| j != e && codewords[j * d..(j + 1) * d] == target[..]) {
-            continue; // its allowed point is taken; the codeword stays unused
-        }
+            let mut target = vectors.row(i).to_vec();
+            constraint.snap_one(&mut target);
+            let taken = (0..k).any(|j| j != e && codewords[j * d..(j + 1) * d] == target[..]);
+            (!taken).then_some((i, target))
+        });
+        let Some((i, target)) = placed else { break };
         codewords[e * d..(e + 1) * d].copy_from_slice(&target);
         members[labels[i] as usize] -= 1;
         repaired += 1;

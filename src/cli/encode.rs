@@ -31,6 +31,12 @@ pub fn run(a: EncodeArgs) -> Result<()> {
     if a.dither.is_some() || a.max_pixels.is_some() {
         return usage("--dither and --max-pixels apply to images encoded with a palette");
     }
+    if super::palette::is_image(&a.input) {
+        anyhow::bail!(
+            "codebook {book_name} was trained on CSV records, but {} is an image; encode images with a palette codebook (vqforge train IMAGE… --size K --out BOOK)",
+            a.input.display()
+        );
+    }
     let layout = layout_of(&book).with_context(|| format!("codebook {book_name}"))?;
     let name = a.input.display().to_string();
     let file = std::fs::File::open(&a.input).with_context(|| format!("opening input {name}"))?;

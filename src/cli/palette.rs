@@ -48,6 +48,29 @@ pub fn is_image(path: &Path) -> bool {
         || h.starts_with(b"GIF8")
 }
 
+/// File name endings of the image formats read (and GIF, refused when read).
+const IMAGE_EXTENSIONS: [&str; 8] = ["png", "jpg", "jpeg", "bmp", "tif", "tiff", "webp", "gif"];
+
+/// True when the file name ends like an image's (case-insensitive).
+fn named_like_image(path: &Path) -> bool {
+    path.extension()
+        .and_then(|e| e.to_str())
+        .is_some_and(|e| IMAGE_EXTENSIONS.iter().any(|x| e.eq_ignore_ascii_case(x)))
+}
+
+/// Refuses a file named like an image whose bytes are not one, rather than
+/// reading it as CSV records and reporting a confusing CSV error (or,
+/// for a renamed table, silently training a record codebook).
+pub fn refuse_image_name_without_image(path: &Path) -> Result<()> {
+    if named_like_image(path) && path.is_file() && !is_image(path) {
+        anyhow::bail!(
+            "reading image: {}: the name says image but the content is not a PNG, JPEG, BMP, TIFF or WebP image; if it holds CSV records, give it a .csv name",
+            path.display()
+        );
+    }
+    Ok(())
+}
+
 fn limits(max_pixels: Option<u64>) -> ImageLimits {
     let mut l = ImageLimits::default();
     if let Some(m) = max_pixels {
@@ -310,14 +333,16 @@ fn firmware_outputs(
 pub fn run(a: PaletteArgs) -> Result<()> {
     let started = Instant::now();
     check_png_size(a.size)?;
-    for out in [Some(&a.out), a.c_source.as_ref(), a.raw.as_ref()]
-        .into_iter()
-        .flatten()
-    {
-        if same_file(&a.image, out) {
+    let outputs = [
+        ("--out", Some(&a.out)),
+        ("--c-source", a.c_source.as_ref()),
+        ("--raw", a.raw.as_ref()),
+    ];
+    for (flag, out) in outputs {
+        if out.is_some_and(|out| same_file(&a.image, out)) {
             return usage(format!(
-                "{} is the input image; choose another output file",
-                out.display()
+                "{flag} {} is the input image; choose another output file",
+                a.image.display()
             ));
         }
     }
@@ -484,6 +509,14 @@ pub fn encode_image(a: &EncodeArgs, book: &Codebook) -> Result<()> {
     let started = Instant::now();
     let palette =
         Palette::from_codebook(book).with_context(|| format!("codebook {}", a.book.display()))?;
+    // A missing input is left to `load_image`, which names the I/O error.
+    if a.input.is_file() && !is_image(&a.input) {
+        anyhow::bail!(
+            "codebook {} is a palette trained on images, but {} is not an image; encode CSV records with a codebook trained on CSV",
+            a.book.display(),
+            a.input.display()
+        );
+    }
     let image = load_image(&a.input, a.max_pixels)?;
     let dither = dither_of(a.dither.unwrap_or(DitherArg::None));
     let indices = palette.map_image(&image, dither)?;

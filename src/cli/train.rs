@@ -100,6 +100,19 @@ pub fn columns_table(e: &RecordError) -> Vec<Vec<String>> {
 }
 
 pub fn run(a: TrainArgs) -> Result<()> {
+    // Before choosing images or records: an image input was once replaced
+    // by the palette codebook because only the CSV path checked this.
+    for input in &a.inputs {
+        if same_file(input, &a.out) {
+            return usage(format!(
+                "--out {} is also an input; choose another file for the codebook",
+                a.out.display()
+            ));
+        }
+    }
+    for input in &a.inputs {
+        super::palette::refuse_image_name_without_image(input)?;
+    }
     let images = a
         .inputs
         .iter()
@@ -119,14 +132,6 @@ pub fn run(a: TrainArgs) -> Result<()> {
     let started = Instant::now();
     let opts = csv_options(&a.read, Some(&a.shape))?;
     let config = train_config(a.size, &a.kmeans)?.check()?;
-    for input in &a.inputs {
-        if same_file(input, &a.out) {
-            return usage(format!(
-                "--out {} is also an input; choose another file for the codebook",
-                a.out.display()
-            ));
-        }
-    }
     let mut tables = Vec::new();
     for input in &a.inputs {
         let name = input.display().to_string();
