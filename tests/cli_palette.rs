@@ -400,7 +400,7 @@ fn train_on_two_images_then_encode_and_decode_each() {
     assert_eq!(int(&t, "vectors"), (a.len() + b.len()) as u64);
     assert_eq!(int(&t, "size"), 16);
     let palette = palette_of(&t);
-    let book = vqforge::format::read_codebook(&d.join("pal.vqb")).unwrap();
+    let book = vqforge::format::read_codebook(d.join("pal.vqb")).unwrap();
 
     for (name, original, (w, h)) in [("a", &a, (64u32, 48u32)), ("b", &b, (48, 64))] {
         let (input, stream, out) = (
@@ -419,7 +419,7 @@ fn train_on_two_images_then_encode_and_decode_each() {
         assert_eq!(int(&e, "bits_per_index"), 4);
         ok(d, &["decode", &stream, "--book", "pal.vqb", "--out", &out]);
 
-        let (header, indices) = vqforge::format::read_stream(&d.join(&stream)).unwrap();
+        let (header, indices) = vqforge::format::read_stream(d.join(&stream)).unwrap();
         vqforge::format::check_stream_matches(&header, &book).unwrap();
         assert_eq!(indices.len(), original.len());
         let decoded = read_png(&d.join(&out));
