@@ -135,6 +135,22 @@ pub struct TrainingFacts {
     pub mse_scaled: f64,
 }
 
+impl TrainingFacts {
+    /// The facts a codebook keeps from a k-means report.
+    pub fn from_report(report: &crate::kmeans::TrainReport) -> Self {
+        TrainingFacts {
+            seed: report.seed,
+            restarts: report.restart_distortions.len() as u32,
+            seeding: report.seeding,
+            iterations: report.iterations,
+            stopped_by: report.stopped_by,
+            vectors: report.total_weight.round() as u64,
+            distinct_vectors: report.distinct_vectors as u64,
+            mse_scaled: report.mse_per_component,
+        }
+    }
+}
+
 /// A trained codebook: `size` codewords of `dimension` components each, in
 /// the training space (after scaling), plus what they mean.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]

@@ -177,16 +177,7 @@ pub fn train_tables(
         dimension: d,
         codewords: trained.codewords,
         meaning: Meaning::Records(layout),
-        training: TrainingFacts {
-            seed: report.seed,
-            restarts: report.restart_distortions.len() as u32,
-            seeding: report.seeding,
-            iterations: report.iterations,
-            stopped_by: report.stopped_by,
-            vectors: report.total_weight.round() as u64,
-            distinct_vectors: report.distinct_vectors as u64,
-            mse_scaled: report.mse_per_component,
-        },
+        training: TrainingFacts::from_report(&report),
     };
     codebook.validate()?;
     Ok(RecordTraining {
