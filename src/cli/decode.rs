@@ -1,6 +1,5 @@
 //! `vqforge decode`: rebuild CSV records from a stream and its codebook.
 
-use std::io::BufWriter;
 use std::time::Instant;
 
 use anyhow::{Context, Result};
@@ -56,13 +55,9 @@ pub fn run(a: DecodeArgs) -> Result<()> {
             ("time", secs(seconds)),
         ]);
     }
-    let file = AtomicFile::create(&a.out).with_context(|| format!("writing {out_name}"))?;
-    let mut writer = BufWriter::new(file);
-    let rows = decode_to_writer(&header, &indices, &book, &mut writer)
-        .with_context(|| format!("writing {out_name}"))?;
-    let file = writer
-        .into_inner()
-        .map_err(|e| e.into_error())
+    // AtomicFile buffers its writes itself.
+    let mut file = AtomicFile::create(&a.out).with_context(|| format!("writing {out_name}"))?;
+    let rows = decode_to_writer(&header, &indices, &book, &mut file)
         .with_context(|| format!("writing {out_name}"))?;
     file.commit()
         .with_context(|| format!("writing {out_name}"))?;

@@ -4,7 +4,6 @@
 //! RGB565 palettes to the sample splash screen and icons (see
 //! [`super::demo_images`]) and write them as indexed PNGs and C source.
 
-use std::io::BufWriter;
 use std::time::Instant;
 
 use anyhow::{Context, Result};
@@ -89,10 +88,9 @@ fn records(a: &DemoArgs) -> Result<serde_json::Value> {
         format::write_codebook(&book_path, &t.codebook)?;
         let enc = encode_reader(&text[..], &name, &t.codebook, &opts, &|_| {})?;
         format::write_stream(&stream_path, &enc.header, &enc.indices)?;
-        let file = AtomicFile::create(&csv_path)?;
-        let mut w = BufWriter::new(file);
-        decode_to_writer(&enc.header, &enc.indices, &t.codebook, &mut w)?;
-        w.into_inner().map_err(|e| e.into_error())?.commit()?;
+        let mut file = AtomicFile::create(&csv_path)?;
+        decode_to_writer(&enc.header, &enc.indices, &t.codebook, &mut file)?;
+        file.commit()?;
         let stream_bytes = std::fs::metadata(&stream_path)?.len();
         let book_bytes = std::fs::metadata(&book_path)?.len();
         let raw = enc.error.rows * table.columns.len() as u64 * 4;

@@ -53,7 +53,8 @@ pub fn run(a: EncodeArgs) -> Result<()> {
     format::write_stream(&a.out, &enc.header, &enc.indices)
         .with_context(|| format!("writing stream {}", a.out.display()))?;
     let stream_bytes = std::fs::metadata(&a.out)?.len();
-    let codebook_bytes = format::codebook_to_bytes(&book)?.len() as u64;
+    // The codebook as stored: its file, not a second serialisation.
+    let codebook_bytes = std::fs::metadata(&a.book)?.len();
     let counts = metrics::index_counts(&enc.indices, book.size());
     let entropy = metrics::index_entropy_bits(&counts);
     let rows = enc.error.rows;

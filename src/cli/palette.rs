@@ -1,7 +1,6 @@
 //! Images: `vqforge palette` (one step to an indexed PNG), and the image
 //! side of `train`, `encode` and `decode`.
 
-use std::io::Write;
 use std::path::Path;
 use std::time::Instant;
 
@@ -589,7 +588,6 @@ pub fn decode_image(
         write_rgb_png(&mut file, info.width, info.height, &rgb)
     }
     .with_context(|| format!("writing {name}"))?;
-    file.flush()?;
     file.commit().with_context(|| format!("writing {name}"))?;
     Ok(std::fs::metadata(out)?.len())
 }
