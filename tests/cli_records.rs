@@ -11,6 +11,9 @@ use std::process::{Command, Output};
 
 use serde_json::Value;
 
+mod common;
+use common::{assert_close, int, num};
+
 const WINE_COLUMNS: [&str; 13] = [
     "alcohol",
     "malic_acid",
@@ -78,26 +81,6 @@ fn json(dir: &Path, args: &[&str]) -> Value {
             String::from_utf8_lossy(&out.stdout)
         )
     })
-}
-
-fn num(v: &Value, key: &str) -> f64 {
-    v[key]
-        .as_f64()
-        .unwrap_or_else(|| panic!("{key:?} is not a number in {v}"))
-}
-
-fn int(v: &Value, key: &str) -> u64 {
-    v[key]
-        .as_u64()
-        .unwrap_or_else(|| panic!("{key:?} is not a whole number in {v}"))
-}
-
-fn assert_close(what: &str, got: f64, want: f64, rel: f64) {
-    let scale = want.abs().max(f64::MIN_POSITIVE);
-    assert!(
-        (got - want).abs() <= rel * scale,
-        "{what}: got {got}, want {want} (relative tolerance {rel})"
-    );
 }
 
 /// The keys every train report must have, with their JSON types.
