@@ -65,6 +65,55 @@ pub fn nearest_linear(codewords: &[f32], dimension: usize, query: &[f32]) -> Nea
     best
 }
 
+/// The nearest codeword and how far the next one is: what bound-based
+/// k-means needs to skip vectors whose nearest codeword cannot change.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct NearestTwo {
+    /// As [`Encoder::nearest`] returns it.
+    pub nearest: Nearest,
+    /// Squared distance (in `f32`, like `nearest`) to the nearest codeword
+    /// other than `nearest.index`; infinite when there is only one.
+    pub second_distance_sq: f32,
+}
+
+impl NearestTwo {
+    fn empty() -> Self {
+        NearestTwo {
+            nearest: Nearest {
+                index: u32::MAX,
+                distance_sq: f32::INFINITY,
+            },
+            second_distance_sq: f32::INFINITY,
+        }
+    }
+
+    /// Offers codeword `id` at squared distance `dist`.
+    #[inline]
+    fn offer(&mut self, id: u32, dist: f32) {
+        let best = &mut self.nearest;
+        if dist < best.distance_sq || (dist == best.distance_sq && id < best.index) {
+            if best.index != u32::MAX {
+                self.second_distance_sq = self.second_distance_sq.min(best.distance_sq);
+            }
+            *best = Nearest {
+                index: id,
+                distance_sq: dist,
+            };
+        } else {
+            self.second_distance_sq = self.second_distance_sq.min(dist);
+        }
+    }
+}
+
+/// [`nearest_linear`] plus the distance to the runner-up.
+pub fn nearest_two_linear(codewords: &[f32], dimension: usize, query: &[f32]) -> NearestTwo {
+    let mut two = NearestTwo::empty();
+    for (i, c) in codewords.chunks_exact(dimension).enumerate() {
+        two.offer(i as u32, distance_sq(c, query));
+    }
+    two
+}
+
 const LEAF_SIZE: usize = 6;
 
 #[derive(Debug, Clone)]
@@ -177,6 +226,13 @@ impl KdTree {
         me
     }
 
+    /// The nearest codeword and the distance to the runner-up.
+    pub fn nearest_two(&self, query: &[f32]) -> NearestTwo {
+        let mut two = NearestTwo::empty();
+        self.search(0, query, &mut two);
+        two
+    }
+
     /// The nearest codeword to `query` (exact; lowest index on ties).
     pub fn nearest(&self, query: &[f32]) -> Nearest {
         let mut best = Nearest {
@@ -187,19 +243,15 @@ impl KdTree {
         best
     }
 
-    fn search(&self, node: u32, q: &[f32], best: &mut Nearest) {
+    fn search<S: Candidates>(&self, node: u32, q: &[f32], found: &mut S) {
         match self.nodes[node as usize] {
             Node::Leaf { start, end } => {
                 let d = self.dimension;
                 for p in start as usize..end as usize {
-                    let dist = distance_sq(&self.points[p * d..(p + 1) * d], q);
-                    let id = self.ids[p];
-                    if dist < best.distance_sq || (dist == best.distance_sq && id < best.index) {
-                        *best = Nearest {
-                            index: id,
-                            distance_sq: dist,
-                        };
-                    }
+                    found.offer(
+                        self.ids[p],
+                        distance_sq(&self.points[p * d..(p + 1) * d], q),
+                    );
                 }
             }
             Node::Split {
@@ -214,14 +266,49 @@ impl KdTree {
                 } else {
                     (above, below)
                 };
-                self.search(near, q, best);
+                self.search(near, q, found);
                 // Points on the far side are at least diff² away (in the same
                 // f32 arithmetic), so equality must still be visited for ties.
-                if diff * diff <= best.distance_sq {
-                    self.search(far, q, best);
+                if diff * diff <= found.radius_sq() {
+                    self.search(far, q, found);
                 }
             }
         }
+    }
+}
+
+/// What a tree search collects: codewords offered one by one, and the
+/// squared distance beyond which none can matter any more.
+trait Candidates {
+    fn offer(&mut self, id: u32, dist: f32);
+    fn radius_sq(&self) -> f32;
+}
+
+impl Candidates for Nearest {
+    #[inline]
+    fn offer(&mut self, id: u32, dist: f32) {
+        if dist < self.distance_sq || (dist == self.distance_sq && id < self.index) {
+            *self = Nearest {
+                index: id,
+                distance_sq: dist,
+            };
+        }
+    }
+
+    fn radius_sq(&self) -> f32 {
+        self.distance_sq
+    }
+}
+
+impl Candidates for NearestTwo {
+    #[inline]
+    fn offer(&mut self, id: u32, dist: f32) {
+        NearestTwo::offer(self, id, dist)
+    }
+
+    /// The runner-up may lie beyond the nearest.
+    fn radius_sq(&self) -> f32 {
+        self.second_distance_sq
     }
 }
 
@@ -302,6 +389,15 @@ impl Encoder {
         }
     }
 
+    /// Nearest codeword of one query and the distance to the runner-up.
+    #[inline]
+    pub fn nearest_two(&self, query: &[f32]) -> NearestTwo {
+        match &self.tree {
+            Some(t) => t.nearest_two(query),
+            None => nearest_two_linear(&self.codewords, self.dimension, query),
+        }
+    }
+
     fn check(&self, dimension: usize) -> Result<()> {
         if dimension != self.dimension {
             return Err(Error::new(
@@ -373,6 +469,18 @@ mod tests {
                     let want = nearest_linear(&cw, d, &q);
                     assert_eq!(tree.nearest(&q), want, "tree d={d} k={k}");
                     assert_eq!(scan.nearest(&q), want, "scan d={d} k={k}");
+                    // Runner-up: the smallest distance over the other codewords.
+                    let second = cw
+                        .chunks_exact(d)
+                        .enumerate()
+                        .filter(|&(i, _)| i as u32 != want.index)
+                        .map(|(_, c)| distance_sq(c, &q))
+                        .fold(f32::INFINITY, f32::min);
+                    for e in [&tree, &scan] {
+                        let two = e.nearest_two(&q);
+                        assert_eq!(two.nearest, want, "two d={d} k={k}");
+                        assert_eq!(two.second_distance_sq, second, "runner-up d={d} k={k}");
+                    }
                 }
             }
         }

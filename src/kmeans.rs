@@ -79,7 +79,32 @@ pub struct TrainConfig {
     pub tolerance: f64,
     /// Master seed; restart r uses a seed derived from it. Default 1.
     pub seed: u64,
+    /// Whether restarts may run on grid cell means first. Default auto.
+    pub coarse_start: CoarseStart,
 }
+
+/// Whether training may start on a coarse stand-in for the data.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum CoarseStart {
+    /// When the single-vector moves are beyond their budget on the distinct
+    /// vectors (n·k·d above [`MOVE_REFINE_BUDGET`]), and these have at most
+    /// [`COARSE_MAX_DIMENSION`] components, seeding, Lloyd and the
+    /// single-vector moves of every restart run on at most [`COARSE_CELLS`]
+    /// grid cell means ([`VectorSet::coarsened`]); the restart whose
+    /// codebook has the lowest distortion on all distinct vectors is then
+    /// refined on all of them with Lloyd (and the constraint). The result
+    /// is a local optimum of the full data, reached for a fraction of the
+    /// cost on photos with hundreds of thousands of colours.
+    Auto,
+    /// Every restart runs on all distinct vectors.
+    Never,
+}
+
+/// The most components [`CoarseStart::Auto`] starts coarse with (colours
+/// with or without alpha); cells hold few vectors in more.
+pub const COARSE_MAX_DIMENSION: usize = 4;
+/// The most cell means a coarse start uses.
+pub const COARSE_CELLS: usize = 32_768;
 
 /// Default master seed, written into every codebook it produces.
 pub const DEFAULT_SEED: u64 = 1;
@@ -94,6 +119,7 @@ impl TrainConfig {
             max_iterations: 300,
             tolerance: 1e-6,
             seed: DEFAULT_SEED,
+            coarse_start: CoarseStart::Auto,
         }
     }
 
@@ -124,6 +150,12 @@ impl TrainConfig {
     /// Sets the master seed.
     pub fn seed(mut self, s: u64) -> Self {
         self.seed = s;
+        self
+    }
+
+    /// Sets whether training may start coarse.
+    pub fn coarse_start(mut self, c: CoarseStart) -> Self {
+        self.coarse_start = c;
         self
     }
 
@@ -185,7 +217,9 @@ pub struct TrainReport {
     pub distortion: f64,
     /// `distortion` / (total weight × dimension): mean squared error per component.
     pub mse_per_component: f64,
-    /// Total distortion of every restart, in order.
+    /// Total distortion of every restart, in order (after a coarse start:
+    /// of its codebook on all distinct vectors, before the final refinement
+    /// of the kept one).
     pub restart_distortions: Vec<f64>,
     /// Index of the kept restart.
     pub best_restart: u32,
@@ -197,6 +231,9 @@ pub struct TrainReport {
     pub total_weight: f64,
     /// Distinct input vectors.
     pub distinct_vectors: usize,
+    /// Cell means the restarts ran on, when training started coarse
+    /// ([`CoarseStart`]).
+    pub coarse_vectors: Option<usize>,
     /// Things the user should know (e.g. fewer distinct vectors than k).
     pub notices: Vec<String>,
 }
@@ -413,6 +450,7 @@ pub fn train_constrained(
                 seeding: cfg.seeding,
                 total_weight,
                 distinct_vectors: distinct,
+                coarse_vectors: None,
                 notices,
             },
         });
@@ -422,7 +460,17 @@ pub fn train_constrained(
         max_iterations: cfg.max_iterations,
         tolerance: cfg.tolerance,
     };
-    let mut best: Option<(u32, LloydResult)> = None;
+    // Many distinct low-dimensional vectors (photos): restarts run on grid
+    // cell means, and only the best is refined on every distinct vector.
+    let work = unique.len().saturating_mul(cfg.size).saturating_mul(dim);
+    let coarse = (cfg.coarse_start == CoarseStart::Auto
+        && dim <= COARSE_MAX_DIMENSION
+        && unique.len() > COARSE_CELLS
+        && work > MOVE_REFINE_BUDGET)
+        .then(|| unique.coarsened(COARSE_CELLS));
+    let stage = coarse.as_ref().unwrap_or(&unique);
+    let free = constraint.without_snap();
+    let mut best: Option<(u32, LloydResult, f64)> = None;
     let mut restart_distortions = Vec::new();
     for r in 0..cfg.restarts {
         observe(TrainEvent::RestartStarted {
@@ -437,39 +485,49 @@ pub fn train_constrained(
                 distortion,
             })
         };
-        let free = constraint.without_snap();
         let result = match cfg.seeding {
             Seeding::KMeansPlusPlus => {
                 let init =
-                    seed_kmeans_plus_plus_around(&unique, cfg.size, &mut rng, constraint.fixed);
-                lloyd_core(&unique, &init, &opts, free, &on_iter)?
+                    seed_kmeans_plus_plus_around(stage, cfg.size, &mut rng, constraint.fixed);
+                lloyd_core(stage, &init, &opts, free, &on_iter)?
             }
             Seeding::Random => {
                 let mut init = constraint.fixed.to_vec();
-                init.extend(seed_random(&unique, cfg.size - fixed, &mut rng));
-                lloyd_core(&unique, &init, &opts, free, &on_iter)?
+                init.extend(seed_random(stage, cfg.size - fixed, &mut rng));
+                lloyd_core(stage, &init, &opts, free, &on_iter)?
             }
-            Seeding::Split => split_and_refine(&unique, cfg.size, &opts, &mut rng, free, &on_iter)?,
+            Seeding::Split => split_and_refine(stage, cfg.size, &opts, &mut rng, free, &on_iter)?,
         };
-        let work = unique.len().saturating_mul(cfg.size).saturating_mul(dim);
-        let result = if work <= MOVE_REFINE_BUDGET {
-            refine_by_moves_core(&unique, &result, &opts, MOVE_PASSES, constraint)?
-        } else if constraint.snap.is_some() {
-            let mut snapped = lloyd_core(&unique, &result.codewords, &opts, constraint, &on_iter)?;
-            snapped.iterations += result.iterations;
-            snapped
+        let (result, distortion) = if coarse.is_some() {
+            let polished = polish(stage, result, &opts, free, &on_iter)?;
+            let mut labels = vec![u32::MAX; unique.len()];
+            let on_all = assign(&unique, &polished.codewords, &mut labels)?.distortion;
+            (polished, on_all)
         } else {
-            result
+            let polished = polish(&unique, result, &opts, constraint, &on_iter)?;
+            let d = polished.distortion;
+            (polished, d)
         };
-        restart_distortions.push(result.distortion);
-        if best
-            .as_ref()
-            .is_none_or(|(_, b)| result.distortion < b.distortion)
-        {
-            best = Some((r, result));
+        restart_distortions.push(distortion);
+        if best.as_ref().is_none_or(|(_, _, b)| distortion < *b) {
+            best = Some((r, result, distortion));
         }
     }
-    let (best_restart, result) = best.expect("at least one restart ran");
+    let (best_restart, result, _) = best.expect("at least one restart ran");
+    let result = if coarse.is_some() {
+        let on_iter = |iteration: u32, distortion: f64| {
+            observe(TrainEvent::Iteration {
+                restart: best_restart,
+                iteration,
+                distortion,
+            })
+        };
+        let mut refined = lloyd_core(&unique, &result.codewords, &opts, free, &on_iter)?;
+        refined.iterations += result.iterations;
+        polish(&unique, refined, &opts, constraint, &on_iter)?
+    } else {
+        result
+    };
     // A codebook never holds one codeword twice. Under a projection the
     // allowed points near the data can run out (a grey display with fewer
     // levels than k); a repeated codeword is never nearest (ties go to the
@@ -497,10 +555,37 @@ pub fn train_constrained(
             seeding: cfg.seeding,
             total_weight,
             distinct_vectors: distinct,
+            coarse_vectors: coarse.as_ref().map(VectorSet::len),
             notices,
         },
         codewords,
     })
+}
+
+/// The end of every run: single-vector moves when the work is affordable
+/// (they end with a Lloyd pass under the constraint), otherwise Lloyd under
+/// the constraint's projection, if it has one.
+fn polish(
+    vectors: &VectorSet,
+    result: LloydResult,
+    opts: &LloydOptions,
+    constraint: Constraint<'_>,
+    on_iter: &(dyn Fn(u32, f64) + Sync),
+) -> Result<LloydResult> {
+    let k = result.codewords.len() / vectors.dimension();
+    let work = vectors
+        .len()
+        .saturating_mul(k)
+        .saturating_mul(vectors.dimension());
+    if work <= MOVE_REFINE_BUDGET {
+        refine_by_moves_core(vectors, &result, opts, MOVE_PASSES, constraint)
+    } else if constraint.snap.is_some() {
+        let mut snapped = lloyd_core(vectors, &result.codewords, opts, constraint, on_iter)?;
+        snapped.iterations += result.iterations;
+        Ok(snapped)
+    } else {
+        Ok(result)
+    }
 }
 
 /// The codewords without later repeats of an earlier one (bit-equal
@@ -697,12 +782,7 @@ fn assign(vectors: &VectorSet, codewords: &[f32], labels: &mut [u32]) -> Result<
         .zip(flat.par_chunks(CHUNK_ROWS * d))
         .enumerate()
         .map(|(c, (lab, rows))| {
-            let mut p = Partial {
-                sums: vec![0.0; k * d],
-                weights: vec![0.0; k],
-                distortion: 0.0,
-                changed: 0,
-            };
+            let mut p = Partial::empty(k, d);
             for (j, (l, r)) in lab.iter_mut().zip(rows.chunks_exact(d)).enumerate() {
                 let w = weights.map_or(1.0, |w| w[c * CHUNK_ROWS + j]);
                 let idx = encoder.nearest(r).index;
@@ -710,23 +790,39 @@ fn assign(vectors: &VectorSet, codewords: &[f32], labels: &mut [u32]) -> Result<
                     p.changed += 1;
                     *l = idx;
                 }
-                let i = idx as usize;
-                let cw = &codewords[i * d..(i + 1) * d];
-                p.distortion += w * exact_sq(r, cw);
-                p.weights[i] += w;
-                for (s, &x) in p.sums[i * d..(i + 1) * d].iter_mut().zip(r) {
-                    *s += w * x as f64;
-                }
+                p.add(r, w, idx as usize, codewords);
             }
             p
         })
         .collect();
-    let mut total = Partial {
-        sums: vec![0.0; k * d],
-        weights: vec![0.0; k],
-        distortion: 0.0,
-        changed: 0,
-    };
+    Ok(reduce(partials, k, d))
+}
+
+impl Partial {
+    fn empty(k: usize, d: usize) -> Self {
+        Partial {
+            sums: vec![0.0; k * d],
+            weights: vec![0.0; k],
+            distortion: 0.0,
+            changed: 0,
+        }
+    }
+
+    /// Adds vector `r` of weight `w`, labelled `i`.
+    #[inline]
+    fn add(&mut self, r: &[f32], w: f64, i: usize, codewords: &[f32]) {
+        let d = r.len();
+        self.distortion += w * exact_sq(r, &codewords[i * d..(i + 1) * d]);
+        self.weights[i] += w;
+        for (s, &x) in self.sums[i * d..(i + 1) * d].iter_mut().zip(r) {
+            *s += w * x as f64;
+        }
+    }
+}
+
+/// Sums per-chunk results in chunk order.
+fn reduce(partials: Vec<Partial>, k: usize, d: usize) -> Partial {
+    let mut total = Partial::empty(k, d);
     for p in partials {
         for (a, b) in total.sums.iter_mut().zip(&p.sums) {
             *a += b;
@@ -737,7 +833,7 @@ fn assign(vectors: &VectorSet, codewords: &[f32], labels: &mut [u32]) -> Result<
         total.distortion += p.distortion;
         total.changed += p.changed;
     }
-    Ok(total)
+    total
 }
 
 /// Moves each codeword to the weighted mean of its vectors, then repairs
@@ -812,6 +908,140 @@ fn update(
     repaired
 }
 
+/// Assignment passes that remember, for every vector, an upper bound on the
+/// distance to its codeword and a lower bound on the distance to every
+/// other one (Hamerly 2010). After the codewords move, the bounds move by
+/// at most as much; a vector whose upper bound stays below both its lower
+/// bound and half the distance from its codeword to the next codeword keeps
+/// its label without a search. Late Lloyd iterations move few vectors, so
+/// most of them are skipped.
+///
+/// The result is exactly that of [`assign`]: a vector is skipped only when
+/// the bounds leave a relative margin far above the rounding of the `f32`
+/// distances the search compares, so the search would return the same
+/// index; sums and distortion are recomputed from all vectors every pass.
+struct BoundedAssign {
+    /// Per vector: ≥ the distance to its codeword.
+    upper: Vec<f64>,
+    /// Per vector: ≤ the distance to every other codeword.
+    lower: Vec<f64>,
+    /// The codewords of the previous pass (empty before the first).
+    last: Vec<f32>,
+    /// Search every vector every pass (the oracle in tests).
+    always_search: bool,
+}
+
+/// Absolute slack for distances so small that `f32` squares underflow.
+const BOUND_FLOOR: f64 = 1e-15;
+
+impl BoundedAssign {
+    fn new(n: usize) -> Self {
+        BoundedAssign {
+            upper: vec![f64::INFINITY; n],
+            lower: vec![0.0; n],
+            last: Vec::new(),
+            always_search: false,
+        }
+    }
+
+    fn pass(
+        &mut self,
+        vectors: &VectorSet,
+        codewords: &[f32],
+        labels: &mut [u32],
+    ) -> Result<Partial> {
+        let d = vectors.dimension();
+        let k = codewords.len() / d;
+        let encoder = Encoder::new(codewords, d)?;
+        // Relative error of an f32 squared distance over d components,
+        // with a wide margin; applied to distances it is wider still.
+        let rel = 4.0 * (d as f64 + 2.0) * f32::EPSILON as f64;
+        let first = self.last.len() != codewords.len() || self.always_search;
+        let (moved, half_gap) = if first {
+            (vec![0.0; k], vec![0.0; k])
+        } else {
+            let moved: Vec<f64> = (0..k)
+                .map(|j| {
+                    exact_sq(
+                        &self.last[j * d..(j + 1) * d],
+                        &codewords[j * d..(j + 1) * d],
+                    )
+                    .sqrt()
+                        * (1.0 + rel)
+                })
+                .collect();
+            let half_gap: Vec<f64> = (0..k)
+                .into_par_iter()
+                .map(|a| {
+                    let ca = &codewords[a * d..(a + 1) * d];
+                    let gap = (0..k)
+                        .filter(|&j| j != a)
+                        .map(|j| exact_sq(ca, &codewords[j * d..(j + 1) * d]))
+                        .fold(f64::INFINITY, f64::min);
+                    0.5 * gap.sqrt()
+                })
+                .collect();
+            (moved, half_gap)
+        };
+        // The largest move and the largest move of any other codeword.
+        let (mut top, mut top_at, mut runner) = (0.0f64, usize::MAX, 0.0f64);
+        for (j, &m) in moved.iter().enumerate() {
+            if m > top {
+                runner = top;
+                top = m;
+                top_at = j;
+            } else if m > runner {
+                runner = m;
+            }
+        }
+        let flat = vectors.as_flat();
+        let weights = vectors.weights();
+        let partials: Vec<Partial> = labels
+            .par_chunks_mut(CHUNK_ROWS)
+            .zip(self.upper.par_chunks_mut(CHUNK_ROWS))
+            .zip(self.lower.par_chunks_mut(CHUNK_ROWS))
+            .zip(flat.par_chunks(CHUNK_ROWS * d))
+            .enumerate()
+            .map(|(c, (((lab, up), low), rows))| {
+                let mut p = Partial::empty(k, d);
+                for (j, r) in rows.chunks_exact(d).enumerate() {
+                    let w = weights.map_or(1.0, |w| w[c * CHUNK_ROWS + j]);
+                    let mut idx = lab[j];
+                    let mut keep = false;
+                    if !first {
+                        let a = idx as usize;
+                        up[j] += moved[a];
+                        low[j] -= if a == top_at { runner } else { top };
+                        let bound = low[j].max(half_gap[a]) * (1.0 - rel);
+                        if up[j] * (1.0 + rel) + BOUND_FLOOR < bound {
+                            keep = true;
+                        } else {
+                            up[j] = exact_sq(r, &codewords[a * d..(a + 1) * d]).sqrt();
+                            keep = up[j] * (1.0 + rel) + BOUND_FLOOR < bound;
+                        }
+                    }
+                    if !keep {
+                        let two = encoder.nearest_two(r);
+                        idx = two.nearest.index;
+                        let i = idx as usize;
+                        up[j] = exact_sq(r, &codewords[i * d..(i + 1) * d]).sqrt();
+                        low[j] = (two.second_distance_sq as f64).sqrt();
+                        if lab[j] != idx {
+                            p.changed += 1;
+                            lab[j] = idx;
+                        }
+                    }
+                    p.add(r, w, idx as usize, codewords);
+                }
+                p
+            })
+            .collect();
+        self.last.clear();
+        self.last.extend_from_slice(codewords);
+        Ok(reduce(partials, k, d))
+    }
+}
+
 /// Lloyd iterations from the given initial codewords.
 ///
 /// Each step (1) assigns every vector to its nearest codeword, ties to the
@@ -840,6 +1070,27 @@ fn lloyd_core(
     opts: &LloydOptions,
     constraint: Constraint<'_>,
     on_iter: &(dyn Fn(u32, f64) + Sync),
+) -> Result<LloydResult> {
+    lloyd_with(vectors, initial, opts, constraint, on_iter, Passes::Bounded)
+}
+
+/// How assignment passes find labels.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Passes {
+    /// Skip vectors whose bounds prove the label stays ([`BoundedAssign`]).
+    Bounded,
+    /// Search every vector every pass: the oracle the bounded passes must equal.
+    #[cfg(test)]
+    SearchAll,
+}
+
+fn lloyd_with(
+    vectors: &VectorSet,
+    initial: &[f32],
+    opts: &LloydOptions,
+    constraint: Constraint<'_>,
+    on_iter: &(dyn Fn(u32, f64) + Sync),
+    passes: Passes,
 ) -> Result<LloydResult> {
     let d = vectors.dimension();
     if initial.is_empty() || initial.len() % d != 0 {
@@ -875,8 +1126,10 @@ fn lloyd_core(
     let mut iterations = 0;
     let stopped_by;
     let mut prev: Option<f64> = None;
+    let mut assigner = BoundedAssign::new(vectors.len());
+    assigner.always_search = passes != Passes::Bounded;
     loop {
-        let p = assign(vectors, &codewords, &mut labels)?;
+        let p = assigner.pass(vectors, &codewords, &mut labels)?;
         iterations += 1;
         history.push(p.distortion);
         on_iter(iterations, p.distortion);
@@ -901,7 +1154,7 @@ fn lloyd_core(
         *history.last().expect("one pass ran")
     } else {
         // Codewords moved after the last assignment: assign once more.
-        assign(vectors, &codewords, &mut labels)?.distortion
+        assigner.pass(vectors, &codewords, &mut labels)?.distortion
     };
     Ok(LloydResult {
         codewords,
@@ -1172,6 +1425,50 @@ mod tests {
             }
         }
         (out, dist)
+    }
+
+    #[test]
+    fn bounded_passes_equal_searching_every_vector() {
+        let mut rng = SeededRng::new(21);
+        let half = |v: &mut [f32]| v.iter_mut().for_each(|x| *x = (*x * 2.0).round() / 2.0);
+        for &(d, n, k, grid) in &[
+            (1, 3000, 9, false),
+            (2, 4000, 40, true),
+            (3, 6000, 256, false),
+            (3, 6000, 64, true),
+            (4, 3000, 20, false),
+            (5, 2000, 33, false),
+            (16, 1500, 70, false),
+        ] {
+            // Coarse grids make exact ties, which must still go to the lowest index.
+            let data: Vec<f32> = (0..n * d)
+                .map(|_| {
+                    let x = rng.normal() as f32 * 3.0;
+                    if grid {
+                        x.round()
+                    } else {
+                        x
+                    }
+                })
+                .collect();
+            let v = VectorSet::new(d, data).unwrap();
+            let init = seed_random(&v.deduplicated(), k, &mut rng);
+            let opts = LloydOptions {
+                max_iterations: 60,
+                tolerance: 0.0,
+            };
+            for snap in [None, Some(&half as SnapFn<'_>)] {
+                let c = Constraint { fixed: &[], snap };
+                let run = |p| lloyd_with(&v, &init, &opts, c, &|_, _| {}, p).unwrap();
+                let (bounded, oracle) = (run(Passes::Bounded), run(Passes::SearchAll));
+                assert_eq!(
+                    bounded,
+                    oracle,
+                    "d={d} k={k} grid={grid} snap={}",
+                    snap.is_some()
+                );
+            }
+        }
     }
 
     #[test]

@@ -134,17 +134,18 @@ impl VectorSet {
     /// cheaper (many pixels share a colour; quantised sensors repeat readings).
     pub fn deduplicated(&self) -> VectorSet {
         use std::collections::HashMap;
-        let mut first: HashMap<Vec<u32>, usize> = HashMap::new();
+        let d = self.dimension;
+        let normal: Vec<f32> = self.data.iter().map(|v| v + 0.0).collect();
+        let mut first: HashMap<RowBits<'_>, usize> = HashMap::with_capacity(self.len());
         let mut data = Vec::new();
         let mut weights: Vec<f64> = Vec::new();
-        for (i, r) in self.rows().enumerate() {
-            let key: Vec<u32> = r.iter().map(|v| (v + 0.0).to_bits()).collect();
+        for (i, r) in normal.chunks_exact(d).enumerate() {
             let w = self.weight(i);
-            match first.get(&key) {
-                Some(&j) => weights[j] += w,
-                None => {
-                    first.insert(key, weights.len());
-                    data.extend(r.iter().map(|v| v + 0.0));
+            match first.entry(RowBits(r)) {
+                std::collections::hash_map::Entry::Occupied(e) => weights[*e.get()] += w,
+                std::collections::hash_map::Entry::Vacant(e) => {
+                    e.insert(weights.len());
+                    data.extend_from_slice(r);
                     weights.push(w);
                 }
             }
@@ -153,6 +154,140 @@ impl VectorSet {
             dimension: self.dimension,
             data,
             weights: Some(weights),
+        }
+    }
+
+    /// The rows binned on a regular grid of cubic cells, each occupied cell
+    /// replaced by the weighted mean of its rows carrying their total weight:
+    /// at most `max_cells` rows that keep the first two moments of every
+    /// cell. The cell width is the smallest tried (from a geometric ladder
+    /// starting at the bounding box) that fits; cells come out in the order
+    /// of their grid coordinates. A cheap stand-in for the full set while
+    /// codewords are still far from their places; only sensible for a few
+    /// components (colours), where cells hold many rows.
+    pub fn coarsened(&self, max_cells: usize) -> VectorSet {
+        let d = self.dimension;
+        let n = self.len();
+        if n <= max_cells.max(1) || d > 8 {
+            return self.clone();
+        }
+        let mut lo = vec![f32::INFINITY; d];
+        let mut hi = vec![f32::NEG_INFINITY; d];
+        for r in self.rows() {
+            for c in 0..d {
+                lo[c] = lo[c].min(r[c]);
+                hi[c] = hi[c].max(r[c]);
+            }
+        }
+        let span = (0..d)
+            .map(|c| (hi[c] - lo[c]) as f64)
+            .fold(0.0f64, f64::max)
+            .max(f64::MIN_POSITIVE);
+        // Bits per component for the cell key: 64 / d, at most 21.
+        let bits = (64 / d).min(21) as u32;
+        let levels = (1u64 << bits) as f64;
+        let finest = span / (levels - 1.0);
+        let bin = |width: f64| -> (Vec<(u64, u32)>, usize) {
+            let mut keyed: Vec<(u64, u32)> = self
+                .rows()
+                .enumerate()
+                .map(|(i, r)| {
+                    let mut key = 0u64;
+                    for c in 0..d {
+                        let cell = (((r[c] - lo[c]) as f64) / width).floor() as u64;
+                        key = (key << bits) | cell.min(levels as u64 - 1);
+                    }
+                    (key, i as u32)
+                })
+                .collect();
+            keyed.sort_unstable();
+            let occupied = 1 + keyed.windows(2).filter(|w| w[0].0 != w[1].0).count();
+            (keyed, occupied)
+        };
+        // Data rarely fill their bounding box, so the width is searched:
+        // the occupied count falls as a power of the width, whose exponent
+        // (the data's apparent dimension) is estimated from the tries.
+        let mut width = (span / (max_cells as f64).powf(1.0 / d as f64)).max(finest);
+        let mut exponent = 2.0f64;
+        let mut last: Option<(f64, usize)> = None;
+        let mut fitting: Option<(f64, Vec<(u64, u32)>)> = None;
+        for _ in 0..8 {
+            let (keyed, occupied) = bin(width);
+            if let Some((w0, o0)) = last {
+                let ratio = (o0 as f64 / occupied as f64).ln() / (width / w0).ln();
+                if ratio.is_finite() && ratio > 0.5 {
+                    exponent = ratio.min(d as f64);
+                }
+            }
+            last = Some((width, occupied));
+            let fits = occupied <= max_cells;
+            if fits && fitting.as_ref().is_none_or(|(w, _)| width < *w) {
+                fitting = Some((width, keyed));
+            }
+            if fits && (occupied * 2 >= max_cells || width <= finest) {
+                break;
+            }
+            let aim = 0.75 * max_cells as f64 / occupied as f64;
+            let step = aim.powf(-1.0 / exponent).clamp(0.25, 4.0);
+            width = (width * step).max(finest);
+        }
+        let keyed = match fitting {
+            Some((_, keyed)) => keyed,
+            None => {
+                // Still too many cells after the tries: widen until it fits.
+                loop {
+                    width *= 2.0;
+                    let (keyed, occupied) = bin(width);
+                    if occupied <= max_cells {
+                        break keyed;
+                    }
+                }
+            }
+        };
+        let mut data = Vec::new();
+        let mut weights = Vec::new();
+        let mut sums = vec![0.0f64; d];
+        for group in keyed.chunk_by(|a, b| a.0 == b.0) {
+            sums.iter_mut().for_each(|s| *s = 0.0);
+            let mut total = 0.0f64;
+            for &(_, i) in group {
+                let w = self.weight(i as usize);
+                total += w;
+                for (s, &x) in sums.iter_mut().zip(self.row(i as usize)) {
+                    *s += w * x as f64;
+                }
+            }
+            if total > 0.0 {
+                data.extend(sums.iter().map(|s| (s / total) as f32));
+                weights.push(total);
+            }
+        }
+        VectorSet {
+            dimension: d,
+            data,
+            weights: Some(weights),
+        }
+    }
+}
+
+/// A row compared and hashed by its bit patterns (−0 already made +0).
+struct RowBits<'a>(&'a [f32]);
+
+impl PartialEq for RowBits<'_> {
+    fn eq(&self, other: &Self) -> bool {
+        self.0
+            .iter()
+            .map(|v| v.to_bits())
+            .eq(other.0.iter().map(|v| v.to_bits()))
+    }
+}
+
+impl Eq for RowBits<'_> {}
+
+impl std::hash::Hash for RowBits<'_> {
+    fn hash<H: std::hash::Hasher>(&self, state: &mut H) {
+        for v in self.0 {
+            state.write_u32(v.to_bits());
         }
     }
 }
@@ -176,5 +311,30 @@ mod tests {
         assert_eq!(d.len(), 3);
         assert_eq!(d.weights().unwrap(), &[2.0, 1.0, 2.0]);
         assert_eq!(v.distinct_count(), 3);
+    }
+
+    #[test]
+    fn coarse_cells_keep_weight_and_mean() {
+        let mut rng = crate::rng::SeededRng::new(4);
+        let data: Vec<f32> = (0..3 * 5000).map(|_| rng.normal() as f32).collect();
+        let v = VectorSet::new(3, data)
+            .unwrap()
+            .with_weights((0..5000).map(|i| 1.0 + (i % 3) as f64).collect())
+            .unwrap();
+        let c = v.coarsened(300);
+        assert!(c.len() <= 300 && c.len() > 30, "{} cells", c.len());
+        assert!((c.total_weight() - v.total_weight()).abs() < 1e-9);
+        // Cell means keep the overall weighted mean.
+        for comp in 0..3 {
+            let mean = |s: &VectorSet| {
+                (0..s.len())
+                    .map(|i| s.weight(i) * s.row(i)[comp] as f64)
+                    .sum::<f64>()
+                    / s.total_weight()
+            };
+            assert!((mean(&c) - mean(&v)).abs() < 1e-5);
+        }
+        // Small sets come back whole.
+        assert_eq!(v.coarsened(10_000), v);
     }
 }
