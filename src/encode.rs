@@ -77,6 +77,17 @@ pub struct NearestTwo {
 }
 
 impl NearestTwo {
+    /// Codeword `id` at squared distance `dist` as the only one seen so far.
+    pub fn of(id: u32, dist: f32) -> Self {
+        NearestTwo {
+            nearest: Nearest {
+                index: id,
+                distance_sq: dist,
+            },
+            second_distance_sq: f32::INFINITY,
+        }
+    }
+
     fn empty() -> Self {
         NearestTwo {
             nearest: Nearest {
@@ -87,9 +98,11 @@ impl NearestTwo {
         }
     }
 
-    /// Offers codeword `id` at squared distance `dist`.
+    /// Offers codeword `id` at squared distance `dist`: it becomes the
+    /// nearest if nearer (or as near with a lower index), else perhaps the
+    /// runner-up.
     #[inline]
-    fn offer(&mut self, id: u32, dist: f32) {
+    pub fn offer(&mut self, id: u32, dist: f32) {
         let best = &mut self.nearest;
         if dist < best.distance_sq || (dist == best.distance_sq && id < best.index) {
             if best.index != u32::MAX {

@@ -10,7 +10,7 @@
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
-use crate::encode::{Encoder, CHUNK_ROWS};
+use crate::encode::{distance_sq, Encoder, NearestTwo, CHUNK_ROWS};
 use crate::error::{Error, ErrorKind, Result};
 use crate::rng::{derive_seed, SeededRng};
 use crate::vectors::VectorSet;
@@ -470,50 +470,63 @@ pub fn train_constrained(
         .then(|| unique.coarsened(COARSE_CELLS));
     let stage = coarse.as_ref().unwrap_or(&unique);
     let free = constraint.without_snap();
-    let mut best: Option<(u32, LloydResult, f64)> = None;
-    let mut restart_distortions = Vec::new();
-    for r in 0..cfg.restarts {
-        observe(TrainEvent::RestartStarted {
-            restart: r,
-            of: cfg.restarts,
-        });
-        let mut rng = SeededRng::new(derive_seed(cfg.seed, r as u64));
-        let on_iter = |iteration: u32, distortion: f64| {
-            observe(TrainEvent::Iteration {
+    // Restarts are independent (each has its own derived seed), so they run
+    // side by side; the single-vector moves inside each are sequential.
+    let runs: Vec<(LloydResult, f64)> = (0..cfg.restarts)
+        .into_par_iter()
+        .with_max_len(1)
+        .map(|r| -> Result<(LloydResult, f64)> {
+            observe(TrainEvent::RestartStarted {
                 restart: r,
-                iteration,
-                distortion,
-            })
-        };
-        let result = match cfg.seeding {
-            Seeding::KMeansPlusPlus => {
-                let init =
-                    seed_kmeans_plus_plus_around(stage, cfg.size, &mut rng, constraint.fixed);
-                lloyd_core(stage, &init, &opts, free, &on_iter)?
+                of: cfg.restarts,
+            });
+            let mut rng = SeededRng::new(derive_seed(cfg.seed, r as u64));
+            let on_iter = |iteration: u32, distortion: f64| {
+                observe(TrainEvent::Iteration {
+                    restart: r,
+                    iteration,
+                    distortion,
+                })
+            };
+            let result = match cfg.seeding {
+                Seeding::KMeansPlusPlus => {
+                    let init =
+                        seed_kmeans_plus_plus_around(stage, cfg.size, &mut rng, constraint.fixed);
+                    lloyd_core(stage, &init, &opts, free, &on_iter)?
+                }
+                Seeding::Random => {
+                    let mut init = constraint.fixed.to_vec();
+                    init.extend(seed_random(stage, cfg.size - fixed, &mut rng));
+                    lloyd_core(stage, &init, &opts, free, &on_iter)?
+                }
+                Seeding::Split => {
+                    split_and_refine(stage, cfg.size, &opts, &mut rng, free, &on_iter)?
+                }
+            };
+            if coarse.is_some() {
+                let polished = polish(stage, result, &opts, free, &on_iter)?;
+                let mut labels = vec![u32::MAX; unique.len()];
+                let on_all = assign(&unique, &polished.codewords, &mut labels)?.distortion;
+                Ok((polished, on_all))
+            } else {
+                let polished = polish(&unique, result, &opts, constraint, &on_iter)?;
+                let d = polished.distortion;
+                Ok((polished, d))
             }
-            Seeding::Random => {
-                let mut init = constraint.fixed.to_vec();
-                init.extend(seed_random(stage, cfg.size - fixed, &mut rng));
-                lloyd_core(stage, &init, &opts, free, &on_iter)?
-            }
-            Seeding::Split => split_and_refine(stage, cfg.size, &opts, &mut rng, free, &on_iter)?,
-        };
-        let (result, distortion) = if coarse.is_some() {
-            let polished = polish(stage, result, &opts, free, &on_iter)?;
-            let mut labels = vec![u32::MAX; unique.len()];
-            let on_all = assign(&unique, &polished.codewords, &mut labels)?.distortion;
-            (polished, on_all)
-        } else {
-            let polished = polish(&unique, result, &opts, constraint, &on_iter)?;
-            let d = polished.distortion;
-            (polished, d)
-        };
-        restart_distortions.push(distortion);
-        if best.as_ref().is_none_or(|(_, _, b)| distortion < *b) {
-            best = Some((r, result, distortion));
+        })
+        .collect::<Result<_>>()?;
+    let restart_distortions: Vec<f64> = runs.iter().map(|(_, d)| *d).collect();
+    let mut best_restart = 0;
+    for (r, &d) in restart_distortions.iter().enumerate() {
+        if d < restart_distortions[best_restart] {
+            best_restart = r;
         }
     }
-    let (best_restart, result, _) = best.expect("at least one restart ran");
+    let (result, _) = runs
+        .into_iter()
+        .nth(best_restart)
+        .expect("at least one restart ran");
+    let best_restart = best_restart as u32;
     let result = if coarse.is_some() {
         let on_iter = |iteration: u32, distortion: f64| {
             observe(TrainEvent::Iteration {
@@ -931,6 +944,84 @@ struct BoundedAssign {
     always_search: bool,
 }
 
+/// The most codewords for which passes keep [`Neighbours`] (k² entries).
+const NEIGHBOUR_LISTS_UP_TO: usize = 1024;
+
+/// For every codeword, the others by increasing distance from it: a
+/// vector at distance u from codeword a can only be nearer to codewords
+/// within 2u of a (triangle inequality), usually a handful.
+struct Neighbours {
+    /// Row a: (distance from a, index) of every other codeword, ascending.
+    rows: Vec<(f64, u32)>,
+    k: usize,
+}
+
+impl Neighbours {
+    fn new(codewords: &[f32], d: usize) -> Self {
+        let k = codewords.len() / d;
+        Self::by(k, |a, j| {
+            exact_sq(
+                &codewords[a * d..(a + 1) * d],
+                &codewords[j * d..(j + 1) * d],
+            )
+            .sqrt()
+        })
+    }
+
+    /// The table for `k` points whose pairwise distances `gap` gives.
+    fn by(k: usize, gap: impl Fn(usize, usize) -> f64 + Sync) -> Self {
+        let mut rows = vec![(0.0f64, 0u32); k * k.saturating_sub(1)];
+        if k > 1 {
+            rows.par_chunks_mut(k - 1).enumerate().for_each(|(a, row)| {
+                let others = (0..k).filter(|&j| j != a);
+                for (slot, j) in row.iter_mut().zip(others) {
+                    *slot = (gap(a, j), j as u32);
+                }
+                row.sort_unstable_by(|x, y| x.0.total_cmp(&y.0).then(x.1.cmp(&y.1)));
+            });
+        }
+        Neighbours { rows, k }
+    }
+
+    fn row(&self, a: usize) -> &[(f64, u32)] {
+        &self.rows[a * (self.k - 1)..(a + 1) * (self.k - 1)]
+    }
+
+    /// Half the distance from codeword a to the nearest other one.
+    fn half_gap(&self, a: usize) -> f64 {
+        self.row(a).first().map_or(f64::INFINITY, |&(g, _)| 0.5 * g)
+    }
+
+    /// The nearest codeword to `x`, whose distance to codeword `a` is `u`
+    /// (f64, exact), searched among the codewords within 2u of a, widened
+    /// by the relative margin `rel`: the others are farther from x than a
+    /// by more than `f32` rounding, so the answer equals a full search.
+    /// Also returns a lower bound on the distance to the codewords not
+    /// examined.
+    fn nearest_two(
+        &self,
+        x: &[f32],
+        a: usize,
+        u: f64,
+        codewords: &[f32],
+        rel: f64,
+    ) -> (NearestTwo, f64) {
+        let d = x.len();
+        let mut two = NearestTwo::of(a as u32, distance_sq(x, &codewords[a * d..(a + 1) * d]));
+        let reach = 2.0 * u * (1.0 + rel) + BOUND_FLOOR;
+        let mut beyond = f64::INFINITY;
+        for &(gap, j) in self.row(a) {
+            if gap > reach {
+                beyond = gap - u;
+                break;
+            }
+            let j = j as usize;
+            two.offer(j as u32, distance_sq(x, &codewords[j * d..(j + 1) * d]));
+        }
+        (two, beyond)
+    }
+}
+
 /// Absolute slack for distances so small that `f32` squares underflow.
 const BOUND_FLOOR: f64 = 1e-15;
 
@@ -957,8 +1048,8 @@ impl BoundedAssign {
         // with a wide margin; applied to distances it is wider still.
         let rel = 4.0 * (d as f64 + 2.0) * f32::EPSILON as f64;
         let first = self.last.len() != codewords.len() || self.always_search;
-        let (moved, half_gap) = if first {
-            (vec![0.0; k], vec![0.0; k])
+        let (moved, near, half_gap) = if first {
+            (vec![0.0; k], None, Vec::new())
         } else {
             let moved: Vec<f64> = (0..k)
                 .map(|j| {
@@ -970,18 +1061,22 @@ impl BoundedAssign {
                         * (1.0 + rel)
                 })
                 .collect();
-            let half_gap: Vec<f64> = (0..k)
-                .into_par_iter()
-                .map(|a| {
-                    let ca = &codewords[a * d..(a + 1) * d];
-                    let gap = (0..k)
-                        .filter(|&j| j != a)
-                        .map(|j| exact_sq(ca, &codewords[j * d..(j + 1) * d]))
-                        .fold(f64::INFINITY, f64::min);
-                    0.5 * gap.sqrt()
-                })
-                .collect();
-            (moved, half_gap)
+            let near = (k <= NEIGHBOUR_LISTS_UP_TO).then(|| Neighbours::new(codewords, d));
+            let half_gap: Vec<f64> = match &near {
+                Some(n) => (0..k).map(|a| n.half_gap(a)).collect(),
+                None => (0..k)
+                    .into_par_iter()
+                    .map(|a| {
+                        let ca = &codewords[a * d..(a + 1) * d];
+                        let gap = (0..k)
+                            .filter(|&j| j != a)
+                            .map(|j| exact_sq(ca, &codewords[j * d..(j + 1) * d]))
+                            .fold(f64::INFINITY, f64::min);
+                        0.5 * gap.sqrt()
+                    })
+                    .collect(),
+            };
+            (moved, near, half_gap)
         };
         // The largest move and the largest move of any other codeword.
         let (mut top, mut top_at, mut runner) = (0.0f64, usize::MAX, 0.0f64);
@@ -1021,11 +1116,14 @@ impl BoundedAssign {
                         }
                     }
                     if !keep {
-                        let two = encoder.nearest_two(r);
+                        let (two, beyond) = match &near {
+                            Some(near) => near.nearest_two(r, idx as usize, up[j], codewords, rel),
+                            None => (encoder.nearest_two(r), f64::INFINITY),
+                        };
                         idx = two.nearest.index;
                         let i = idx as usize;
                         up[j] = exact_sq(r, &codewords[i * d..(i + 1) * d]).sqrt();
-                        low[j] = (two.second_distance_sq as f64).sqrt();
+                        low[j] = (two.second_distance_sq as f64).sqrt().min(beyond);
                         if lab[j] != idx {
                             p.changed += 1;
                             lab[j] = idx;
@@ -1077,9 +1175,11 @@ fn lloyd_core(
 /// How assignment passes find labels.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 enum Passes {
-    /// Skip vectors whose bounds prove the label stays ([`BoundedAssign`]).
+    /// Skip vectors whose bounds prove the label stays ([`BoundedAssign`]),
+    /// and moves that cannot pay.
     Bounded,
-    /// Search every vector every pass: the oracle the bounded passes must equal.
+    /// Search every vector every pass, weigh every move: the oracle the
+    /// bounded passes must equal.
     #[cfg(test)]
     SearchAll,
 }
@@ -1204,6 +1304,24 @@ fn refine_by_moves_core(
     max_passes: u32,
     constraint: Constraint<'_>,
 ) -> Result<LloydResult> {
+    refine_by_moves_with(
+        vectors,
+        start,
+        opts,
+        max_passes,
+        constraint,
+        Passes::Bounded,
+    )
+}
+
+fn refine_by_moves_with(
+    vectors: &VectorSet,
+    start: &LloydResult,
+    opts: &LloydOptions,
+    max_passes: u32,
+    constraint: Constraint<'_>,
+    passes: Passes,
+) -> Result<LloydResult> {
     let d = vectors.dimension();
     let fixed = constraint.fixed_count(d);
     let k = start.codewords.len() / d;
@@ -1246,8 +1364,26 @@ fn refine_by_moves_core(
             })
             .sum()
     };
+    let norm = |v: &[f64]| v.iter().map(|x| x * x).sum::<f64>().sqrt();
     for _ in 0..max_passes {
         let mut moved = 0u64;
+        // Candidates come nearest first from a table of the centres as
+        // they were when the pass began; `drift` bounds how far each has
+        // moved since. A cluster of weight W takes x (weight w) for
+        // W·w/(W+w)·‖x−c‖², at least `least_factor`·‖x−c‖², so once even
+        // the nearest remaining centre cannot beat the best move, none can.
+        let near = Neighbours::by(k, |a, b| {
+            let diff: Vec<f64> = (0..d)
+                .map(|c| centre[a * d + c] - centre[b * d + c])
+                .collect();
+            norm(&diff)
+        });
+        let mut drift = vec![0.0f64; k];
+        let mut max_drift = 0.0f64;
+        let mut least_weight = (fixed..k)
+            .map(|j| weight[j])
+            .filter(|&w| w > 0.0)
+            .fold(f64::INFINITY, f64::min);
         for (i, x) in vectors.rows().enumerate() {
             let a = labels[i] as usize;
             let w = vectors.weight(i);
@@ -1260,9 +1396,23 @@ fn refine_by_moves_core(
             } else {
                 weight[a] * w / (weight[a] - w) * da
             };
+            let least_factor = if least_weight.is_finite() {
+                w * least_weight / (least_weight + w)
+            } else {
+                w
+            };
+            let r = da.sqrt();
             let mut best = (remove, a);
-            for b in 0..k {
-                if b == a || (b >= fixed && weight[b] <= 0.0) {
+            for &(gap, b) in near.row(a) {
+                let b = b as usize;
+                let reach = gap - drift[a] - max_drift - r;
+                if passes == Passes::Bounded
+                    && reach > 0.0
+                    && least_factor * reach * reach * (1.0 - 1e-9) > best.0
+                {
+                    break;
+                }
+                if b >= fixed && weight[b] <= 0.0 {
                     continue;
                 }
                 let db = dist(x, &centre[b * d..(b + 1) * d]);
@@ -1271,7 +1421,9 @@ fn refine_by_moves_core(
                 } else {
                     weight[b] * w / (weight[b] + w) * db
                 };
-                if add < best.0 {
+                // As a scan in index order would choose: the lowest index
+                // among equal best moves.
+                if add < best.0 || (add == best.0 && best.1 != a && b < best.1) {
                     best = (add, b);
                 }
             }
@@ -1285,11 +1437,17 @@ fn refine_by_moves_core(
                     sums[a * d + c] -= v;
                     sums[b * d + c] += v;
                 }
-                if a >= fixed {
-                    set_centre(&mut centre, &sums, &weight, a);
+                for j in [a, b] {
+                    if j >= fixed {
+                        let old: Vec<f64> = centre[j * d..(j + 1) * d].to_vec();
+                        set_centre(&mut centre, &sums, &weight, j);
+                        let step: Vec<f64> = (0..d).map(|c| centre[j * d + c] - old[c]).collect();
+                        drift[j] += norm(&step) * (1.0 + 1e-9);
+                        max_drift = max_drift.max(drift[j]);
+                    }
                 }
-                if b >= fixed {
-                    set_centre(&mut centre, &sums, &weight, b);
+                if a >= fixed && weight[a] > 0.0 {
+                    least_weight = least_weight.min(weight[a]);
                 }
                 labels[i] = b as u32;
                 moved += 1;
@@ -1468,6 +1626,34 @@ mod tests {
                     snap.is_some()
                 );
             }
+        }
+    }
+
+    #[test]
+    fn pruned_moves_equal_weighing_every_move() {
+        let v = gaussian_mixture(8, 3000, &[[0.0, 0.0], [2.0, 0.5], [0.5, 2.0], [2.5, 2.5]]);
+        let mut rng = SeededRng::new(3);
+        // Integer weights, some large, so heavy vectors and tiny clusters meet.
+        let weights: Vec<f64> = (0..v.len())
+            .map(|_| (1.0 + 40.0 * rng.unit_f64().powi(6)).floor())
+            .collect();
+        let v = v.with_weights(weights).unwrap();
+        let opts = LloydOptions {
+            max_iterations: 200,
+            tolerance: 0.0,
+        };
+        let fixed = [1.0f32, 1.0];
+        for (k, fixed) in [(12, &[][..]), (40, &fixed[..])] {
+            let init = seed_kmeans_plus_plus_around(&v, k, &mut rng, fixed);
+            let c = Constraint { fixed, snap: None };
+            let start = lloyd_constrained(&v, &init, &opts, c).unwrap();
+            let run = |p| refine_by_moves_with(&v, &start, &opts, 10, c, p).unwrap();
+            let (pruned, oracle) = (run(Passes::Bounded), run(Passes::SearchAll));
+            assert!(
+                oracle.distortion < start.distortion,
+                "k={k}: the moves must do something"
+            );
+            assert_eq!(pruned, oracle, "k={k}");
         }
     }
 

@@ -5,11 +5,13 @@
 //! opens files (see [`crate::load`] and [`crate::export`]).
 
 use std::collections::HashMap;
+use std::hash::{BuildHasherDefault, Hasher};
 
+use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 use crate::codebook::{Codebook, Meaning, TrainingFacts};
-use crate::colour::{delta_e2000_rgb8, rgb8_to_lab, ColourSpace, DisplayFormat, Grid};
+use crate::colour::{delta_e2000, rgb8_to_lab, ColourSpace, DisplayFormat, Grid};
 use crate::encode::Encoder;
 use crate::error::{Error, ErrorKind, Result};
 use crate::kmeans::{train_constrained, CheckedTrainConfig, Constraint, TrainEvent, TrainReport};
@@ -18,6 +20,44 @@ use crate::metrics::psnr_db;
 use crate::vectors::VectorSet;
 
 const STAGE: &str = "building palette";
+
+/// Hashes the packed integer keys of the colour maps below with one
+/// multiplication (Fibonacci hashing): keys are distinct small integers, not
+/// attacker-chosen, and a photo needs millions of lookups.
+#[derive(Default)]
+struct PackedKeyHasher(u64);
+
+impl Hasher for PackedKeyHasher {
+    fn finish(&self) -> u64 {
+        let h = self.0.wrapping_mul(0x9E37_79B9_7F4A_7C15);
+        h ^ (h >> 29)
+    }
+
+    fn write(&mut self, bytes: &[u8]) {
+        for &b in bytes {
+            self.0 = (self.0 << 8) | b as u64;
+        }
+    }
+
+    fn write_u32(&mut self, v: u32) {
+        self.0 = v as u64;
+    }
+
+    fn write_u64(&mut self, v: u64) {
+        self.0 = v;
+    }
+}
+
+/// A map keyed by packed colours (and indices).
+type PackedMap<V> = HashMap<u64, V, BuildHasherDefault<PackedKeyHasher>>;
+
+fn packed(px: [u8; 4]) -> u64 {
+    u32::from_be_bytes(px) as u64
+}
+
+fn unpacked(key: u64) -> [u8; 4] {
+    (key as u32).to_be_bytes()
+}
 
 /// What happens to partly transparent pixels.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -230,7 +270,7 @@ pub fn train_palette(
     observe: &(dyn Fn(TrainEvent) + Sync),
 ) -> Result<PaletteTraining> {
     config.check()?;
-    let mut counts: HashMap<[u8; 4], u64> = HashMap::new();
+    let mut counts: PackedMap<u64> = PackedMap::default();
     let mut transparent = 0u64;
     let mut pixels = 0u64;
     for img in images {
@@ -239,11 +279,12 @@ pub fn train_palette(
             if c[3] == 0 {
                 transparent += n;
             } else {
-                *counts.entry(handled(c, config.alpha)).or_insert(0) += n;
+                *counts.entry(packed(handled(c, config.alpha))).or_insert(0) += n;
             }
         }
     }
-    let mut colours: Vec<([u8; 4], u64)> = counts.into_iter().collect();
+    let mut colours: Vec<([u8; 4], u64)> =
+        counts.into_iter().map(|(c, n)| (unpacked(c), n)).collect();
     colours.sort_unstable();
     let layout = PixelLayout {
         space: config.space,
@@ -490,20 +531,30 @@ impl Palette {
     fn map_plain(&self, image: &RgbaImage) -> Vec<u32> {
         let hist = colour_histogram(image);
         let d = self.layout.dimension();
-        let mut v = Vec::with_capacity(d);
-        let mut lookup: HashMap<[u8; 4], u32> = HashMap::with_capacity(hist.len());
-        for (c, _) in hist {
-            let idx = match self.reserved_for(c) {
-                Some(i) => i,
-                None => {
-                    v.clear();
-                    working(handled(c, self.layout.alpha), &self.layout, &mut v);
-                    self.nearest(&v)
-                }
-            };
-            lookup.insert(c, idx);
-        }
-        image.pixels.iter().map(|p| lookup[p]).collect()
+        let index: Vec<u32> = hist
+            .par_iter()
+            .map_init(
+                || Vec::with_capacity(d),
+                |v, &(c, _)| match self.reserved_for(c) {
+                    Some(i) => i,
+                    None => {
+                        v.clear();
+                        working(handled(c, self.layout.alpha), &self.layout, v);
+                        self.nearest(v)
+                    }
+                },
+            )
+            .collect();
+        let lookup: PackedMap<u32> = hist
+            .iter()
+            .zip(index)
+            .map(|(&(c, _), i)| (packed(c), i))
+            .collect();
+        image
+            .pixels
+            .par_iter()
+            .map(|&p| lookup[&packed(p)])
+            .collect()
     }
 
     fn map_diffused(&self, image: &RgbaImage) -> Vec<u32> {
@@ -671,38 +722,54 @@ pub fn measure(image: &RgbaImage, indices: &[u32], palette: &Palette) -> Result<
     }
     let keep = palette.layout.alpha == AlphaMode::Keep;
     let channels = if keep { 4.0 } else { 3.0 };
-    let mut pairs: HashMap<([u8; 4], u32), u64> = HashMap::new();
+    let mut pairs: PackedMap<u64> = PackedMap::default();
     for (p, &i) in image.pixels.iter().zip(indices) {
         if palette.reserved_for(*p) == Some(i) {
             continue;
         }
-        *pairs
-            .entry((handled(*p, palette.layout.alpha), i))
-            .or_insert(0) += 1;
+        let key = packed(handled(*p, palette.layout.alpha)) << 32 | i as u64;
+        *pairs.entry(key).or_insert(0) += 1;
     }
+    let pairs: Vec<(u64, u64)> = pairs.into_iter().collect();
+    if let Some(&(key, _)) = pairs
+        .iter()
+        .find(|(key, _)| *key as u32 as usize >= palette.entries.len())
+    {
+        return Err(Error::new(
+            "measuring",
+            ErrorKind::Mismatch(format!("index {} is beyond the palette", key as u32)),
+        ));
+    }
+    let entry_lab: Vec<[f64; 3]> = palette
+        .entries
+        .iter()
+        .map(|e| rgb8_to_lab([e[0], e[1], e[2]]))
+        .collect();
+    let used = if keep { 4 } else { 3 };
+    // Per (colour, entry) pair: squared error summed over channels, ΔE2000.
+    let per_pair: Vec<(f64, f64, u64)> = pairs
+        .par_iter()
+        .map(|&(key, count)| {
+            let c = unpacked(key >> 32);
+            let i = key as u32 as usize;
+            let e = palette.entries[i];
+            let s: f64 = (0..used)
+                .map(|ch| {
+                    let d = c[ch] as f64 - e[ch] as f64;
+                    d * d
+                })
+                .sum();
+            let de = delta_e2000(rgb8_to_lab([c[0], c[1], c[2]]), entry_lab[i]);
+            (s, de, count)
+        })
+        .collect();
     let mut sq = 0.0f64;
     let mut n = 0u64;
-    let mut des: Vec<(f64, u64)> = Vec::with_capacity(pairs.len());
-    for ((c, i), count) in pairs {
-        let e = palette.entries.get(i as usize).ok_or_else(|| {
-            Error::new(
-                "measuring",
-                ErrorKind::Mismatch(format!("index {i} is beyond the palette")),
-            )
-        })?;
-        let used = if keep { 4 } else { 3 };
-        let s: f64 = (0..used)
-            .map(|ch| {
-                let d = c[ch] as f64 - e[ch] as f64;
-                d * d
-            })
-            .sum();
+    let mut des: Vec<(f64, u64)> = Vec::with_capacity(per_pair.len());
+    for &(s, de, count) in &per_pair {
         sq += s * count as f64;
         n += count;
-        des.push((
-            delta_e2000_rgb8([c[0], c[1], c[2]], [e[0], e[1], e[2]]),
-            count,
-        ));
+        des.push((de, count));
     }
     let mse = if n == 0 {
         0.0
