@@ -378,6 +378,7 @@ pub fn run(a: PaletteArgs) -> Result<()> {
             "dither": dither_name(dither),
             "palette": palette.entries.iter().map(|e| hex([e[0], e[1], e[2]])).collect::<Vec<_>>(),
             "seed": t.report.seed,
+            "coarse_start_cells": t.report.coarse_vectors,
             "seconds": seconds,
             "notices": t.notices,
         });
@@ -413,9 +414,19 @@ pub fn run(a: PaletteArgs) -> Result<()> {
             ),
         ),
     ];
+    if let Some(cells) = t.report.coarse_vectors {
+        pairs.push(("coarse start", coarse_start_line(cells)));
+    }
     pairs.extend(error_pairs(&err));
     pairs.push(("time", secs(seconds)));
     print_pairs(&pairs)
+}
+
+/// What a coarse start did, for the human report.
+fn coarse_start_line(cells: usize) -> String {
+    format!(
+        "restarts ran on {cells} cell means of the colours; the best was refined on all of them"
+    )
 }
 
 pub(super) fn merge(into: &mut serde_json::Value, from: serde_json::Value) {
@@ -459,6 +470,7 @@ pub fn train_images(a: TrainArgs) -> Result<()> {
             "iterations": r.iterations,
             "stopped_by": r.stopped_by.as_str(),
             "restarts": r.restart_distortions.len(),
+            "coarse_start_cells": r.coarse_vectors,
             "seed": r.seed,
             "space": palette.layout().space.name(),
             "display": palette.layout().display.name(),
@@ -468,7 +480,7 @@ pub fn train_images(a: TrainArgs) -> Result<()> {
             "notices": t.notices,
         }));
     }
-    print_pairs(&[
+    let mut pairs = vec![
         (
             "palette",
             format!(
@@ -498,9 +510,13 @@ pub fn train_images(a: TrainArgs) -> Result<()> {
                 r.stopped_by.as_str()
             ),
         ),
-        ("mse (working space)", num(mse_scaled)),
-        ("time", secs(seconds)),
-    ])
+    ];
+    if let Some(cells) = r.coarse_vectors {
+        pairs.push(("coarse start", coarse_start_line(cells)));
+    }
+    pairs.push(("mse (working space)", num(mse_scaled)));
+    pairs.push(("time", secs(seconds)));
+    print_pairs(&pairs)
 }
 
 /// `vqforge encode IMAGE --book PALETTE --out STREAM`.

@@ -177,6 +177,7 @@ pub fn run(a: TrainArgs) -> Result<()> {
             "stopped_by": r.stopped_by.as_str(),
             "restarts": r.restart_distortions.len(),
             "best_restart": r.best_restart,
+            "coarse_start_cells": r.coarse_vectors,
             "seeding": r.seeding.as_str(),
             "seed": r.seed,
             "columns": columns_json(&t.error),
