@@ -1,0 +1,77 @@
+//! The vqforge side of `benches/compare/run.sh`: times the library on the
+//! same raw arrays the Python engines get, so no file parsing is timed.
+//!
+//! ```text
+//! compare_harness lloyd  DATA.f32 INIT.f32 DIM ITERATIONS
+//! compare_harness encode DATA.f32 CODEBOOK.f32 DIM INDICES_OUT.u32
+//! ```
+//!
+//! Arrays are little-endian `f32`, row after row; indices are written as
+//! little-endian `u32`. Prints one JSON object. Threads: rayon's pool, set
+//! with `RAYON_NUM_THREADS`.
+
+use std::time::Instant;
+
+use serde_json::json;
+use vqforge::encode::Encoder;
+use vqforge::kmeans::{lloyd, LloydOptions};
+use vqforge::vectors::VectorSet;
+
+fn read_f32(path: &str) -> Vec<f32> {
+    let bytes = std::fs::read(path).unwrap_or_else(|e| panic!("reading {path}: {e}"));
+    assert!(bytes.len() % 4 == 0, "{path}: not whole f32 values");
+    bytes
+        .chunks_exact(4)
+        .map(|b| f32::from_le_bytes([b[0], b[1], b[2], b[3]]))
+        .collect()
+}
+
+fn main() {
+    let args: Vec<String> = std::env::args().skip(1).collect();
+    let usage = "usage: compare_harness lloyd DATA INIT DIM ITERATIONS | encode DATA BOOK DIM OUT";
+    assert!(args.len() == 5, "{usage}");
+    let dim: usize = args[3].parse().expect("DIM is a number");
+    let data = VectorSet::new(dim, read_f32(&args[1])).expect("finite rows");
+    let second = read_f32(&args[2]);
+    let threads = rayon::current_num_threads();
+    match args[0].as_str() {
+        "lloyd" => {
+            let iterations: u32 = args[4].parse().expect("ITERATIONS is a number");
+            let opts = LloydOptions {
+                max_iterations: iterations,
+                tolerance: 0.0,
+            };
+            let started = Instant::now();
+            let r = lloyd(&data, &second, &opts).expect("valid input");
+            let seconds = started.elapsed().as_secs_f64();
+            println!(
+                "{}",
+                json!({
+                    "seconds": seconds,
+                    "iterations": r.iterations,
+                    "distortion": r.distortion,
+                    "mse_per_vector": r.distortion / data.len() as f64,
+                    "threads": threads,
+                })
+            );
+        }
+        "encode" => {
+            let started = Instant::now();
+            let encoder = Encoder::new(&second, dim).expect("valid codebook");
+            let indices = encoder.encode(&data).expect("same dimension");
+            let seconds = started.elapsed().as_secs_f64();
+            let bytes: Vec<u8> = indices.iter().flat_map(|i| i.to_le_bytes()).collect();
+            std::fs::write(&args[4], bytes).unwrap_or_else(|e| panic!("writing {}: {e}", args[4]));
+            println!(
+                "{}",
+                json!({
+                    "seconds": seconds,
+                    "vectors": data.len(),
+                    "method": format!("{:?}", encoder.method()),
+                    "threads": threads,
+                })
+            );
+        }
+        other => panic!("unknown mode {other:?}; {usage}"),
+    }
+}
