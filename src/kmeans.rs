@@ -1043,7 +1043,6 @@ impl BoundedAssign {
     ) -> Result<Partial> {
         let d = vectors.dimension();
         let k = codewords.len() / d;
-        let encoder = Encoder::new(codewords, d)?;
         // Relative error of an f32 squared distance over d components,
         // with a wide margin; applied to distances it is wider still.
         let rel = 4.0 * (d as f64 + 2.0) * f32::EPSILON as f64;
@@ -1077,6 +1076,11 @@ impl BoundedAssign {
                     .collect(),
             };
             (moved, near, half_gap)
+        };
+        // The tree or scan is only needed without neighbour lists.
+        let encoder = match near {
+            Some(_) => None,
+            None => Some(Encoder::new(codewords, d)?),
         };
         // The largest move and the largest move of any other codeword.
         let (mut top, mut top_at, mut runner) = (0.0f64, usize::MAX, 0.0f64);
@@ -1118,7 +1122,10 @@ impl BoundedAssign {
                     if !keep {
                         let (two, beyond) = match &near {
                             Some(near) => near.nearest_two(r, idx as usize, up[j], codewords, rel),
-                            None => (encoder.nearest_two(r), f64::INFINITY),
+                            None => (
+                                encoder.as_ref().expect("built above").nearest_two(r),
+                                f64::INFINITY,
+                            ),
                         };
                         idx = two.nearest.index;
                         let i = idx as usize;
