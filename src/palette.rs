@@ -270,22 +270,29 @@ pub fn train_palette(
     observe: &(dyn Fn(TrainEvent) + Sync),
 ) -> Result<PaletteTraining> {
     config.check()?;
-    let mut counts: PackedMap<u64> = PackedMap::default();
     let mut transparent = 0u64;
     let mut pixels = 0u64;
+    // Colours after alpha handling with their pixel counts: sorted, then
+    // equal ones merged (compositing can make two colours one).
+    let mut colours: Vec<([u8; 4], u64)> = Vec::new();
     for img in images {
         pixels += img.pixels.len() as u64;
         for (c, n) in colour_histogram(img) {
             if c[3] == 0 {
                 transparent += n;
             } else {
-                *counts.entry(packed(handled(c, config.alpha))).or_insert(0) += n;
+                colours.push((handled(c, config.alpha), n));
             }
         }
     }
-    let mut colours: Vec<([u8; 4], u64)> =
-        counts.into_iter().map(|(c, n)| (unpacked(c), n)).collect();
     colours.sort_unstable();
+    colours.dedup_by(|later, kept| {
+        let same = later.0 == kept.0;
+        if same {
+            kept.1 += later.1;
+        }
+        same
+    });
     let layout = PixelLayout {
         space: config.space,
         display: config.display,

@@ -1,6 +1,8 @@
 //! `VectorSet`: contiguous `f32` rows of one runtime dimension, with optional
 //! per-row weights. Everything downstream of loading works on this.
 
+use rayon::prelude::*;
+
 use crate::error::{Error, ErrorKind, Position, Result};
 
 /// Rows of `dimension` components stored one after another, with optional
@@ -120,40 +122,54 @@ impl VectorSet {
 
     /// Number of distinct rows (bitwise equal after normalising −0 to +0).
     pub fn distinct_count(&self) -> usize {
-        let mut keys: Vec<Vec<u32>> = self
-            .rows()
-            .map(|r| r.iter().map(|v| (v + 0.0).to_bits()).collect())
-            .collect();
-        keys.sort_unstable();
-        keys.dedup();
-        keys.len()
+        let order = self.sorted_rows();
+        let same = |x: u32, y: u32| self.row_bits(x).eq(self.row_bits(y));
+        order.windows(2).filter(|w| !same(w[0], w[1])).count() + usize::from(!order.is_empty())
+    }
+
+    /// A row's components as bit patterns, −0 made +0.
+    fn row_bits(&self, i: u32) -> impl Iterator<Item = u32> + '_ {
+        self.row(i as usize).iter().map(|v| (v + 0.0).to_bits())
+    }
+
+    /// Row indices sorted so that equal rows are adjacent, the lower index
+    /// first among equals.
+    fn sorted_rows(&self) -> Vec<u32> {
+        let mut order: Vec<u32> = (0..self.len() as u32).collect();
+        order.par_sort_unstable_by(|&x, &y| self.row_bits(x).cmp(self.row_bits(y)).then(x.cmp(&y)));
+        order
     }
 
     /// Identical rows merged into one row whose weight is the sum of theirs,
     /// in order of first appearance. Training on this is exact and often much
     /// cheaper (many pixels share a colour; quantised sensors repeat readings).
+    /// Sorts row indices rather than hashing rows, which keeps the extra
+    /// memory to a few bytes per row.
     pub fn deduplicated(&self) -> VectorSet {
-        use std::collections::HashMap;
         let d = self.dimension;
-        let normal: Vec<f32> = self.data.iter().map(|v| v + 0.0).collect();
-        let mut first: HashMap<RowBits<'_>, usize> = HashMap::with_capacity(self.len());
-        let mut data = Vec::new();
-        let mut weights: Vec<f64> = Vec::new();
-        for (i, r) in normal.chunks_exact(d).enumerate() {
-            let w = self.weight(i);
-            match first.entry(RowBits(r)) {
-                std::collections::hash_map::Entry::Occupied(e) => weights[*e.get()] += w,
-                std::collections::hash_map::Entry::Vacant(e) => {
-                    e.insert(weights.len());
-                    data.extend_from_slice(r);
-                    weights.push(w);
+        let order = self.sorted_rows();
+        // (first index, summed weight) per run of equal rows; the weights
+        // are summed in index order, as a pass in appearance order would.
+        let mut firsts: Vec<(u32, f64)> = Vec::new();
+        for (i, &row) in order.iter().enumerate() {
+            let w = self.weight(row as usize);
+            match firsts.last_mut() {
+                Some((first, sum)) if i > 0 && self.row_bits(*first).eq(self.row_bits(row)) => {
+                    *sum += w
                 }
+                _ => firsts.push((row, w)),
             }
         }
+        drop(order);
+        firsts.sort_unstable_by_key(|&(first, _)| first);
+        let mut data = Vec::with_capacity(firsts.len() * d);
+        for &(first, _) in &firsts {
+            data.extend(self.row(first as usize).iter().map(|v| v + 0.0));
+        }
         VectorSet {
-            dimension: self.dimension,
+            dimension: d,
             data,
-            weights: Some(weights),
+            weights: Some(firsts.into_iter().map(|(_, w)| w).collect()),
         }
     }
 
@@ -266,28 +282,6 @@ impl VectorSet {
             dimension: d,
             data,
             weights: Some(weights),
-        }
-    }
-}
-
-/// A row compared and hashed by its bit patterns (−0 already made +0).
-struct RowBits<'a>(&'a [f32]);
-
-impl PartialEq for RowBits<'_> {
-    fn eq(&self, other: &Self) -> bool {
-        self.0
-            .iter()
-            .map(|v| v.to_bits())
-            .eq(other.0.iter().map(|v| v.to_bits()))
-    }
-}
-
-impl Eq for RowBits<'_> {}
-
-impl std::hash::Hash for RowBits<'_> {
-    fn hash<H: std::hash::Hasher>(&self, state: &mut H) {
-        for v in self.0 {
-            state.write_u32(v.to_bits());
         }
     }
 }
