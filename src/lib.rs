@@ -46,6 +46,7 @@
 pub mod atomic;
 pub mod codebook;
 pub mod colour;
+pub mod curve;
 pub mod encode;
 pub mod error;
 pub mod export;
