@@ -12,10 +12,14 @@ use crate::format::{codebook_to_bytes, stream_file_len, ImageInfo, StreamHeader}
 use crate::load::RgbaImage;
 use crate::metrics::{index_entropy_bits, psnr_db};
 use crate::palette::{measure_colours, Palette, PaletteConfig, PaletteInput, PaletteOrder};
+use crate::rng::derive_seed;
 
 use super::grow::Stage;
 use super::holdout::holdout_tiles;
 use super::{CurvePoint, HeldOut, Quality, Rate};
+
+/// Mixed into the master seed for the held-out tiles.
+const HOLDOUT_STREAM: u64 = 0x686f_6c64_6f75_7421;
 
 /// Images ready for a curve: the palette input of the training pixels, and
 /// the colour counts of the held-out and of all pixels.
@@ -42,7 +46,7 @@ fn counted(counts: HashMap<[u8; 4], u64>) -> Vec<([u8; 4], u64)> {
 impl ImageSource {
     /// Prepares `images` for palettes fitted as `config` says (its size is
     /// not used); with `holdout`, that fraction of square tiles, drawn with
-    /// `seed`, is held out ([`holdout_tiles`]).
+    /// a seed derived from the master `seed`, is held out ([`holdout_tiles`]).
     pub fn new(
         images: &[RgbaImage],
         config: &PaletteConfig,
@@ -51,7 +55,12 @@ impl ImageSource {
     ) -> Result<Self> {
         let sizes: Vec<(u32, u32)> = images.iter().map(|i| (i.width, i.height)).collect();
         let masks = match holdout {
-            Some(f) => Some(holdout_tiles(&sizes, f, seed)?),
+            // A stream of its own, apart from the training restarts' seeds.
+            Some(f) => Some(holdout_tiles(
+                &sizes,
+                f,
+                derive_seed(seed ^ HOLDOUT_STREAM, 0),
+            )?),
             None => None,
         };
         let mut training: HashMap<[u8; 4], u64> = HashMap::new();

@@ -49,6 +49,7 @@ pub use self::sizes::{Sizes, MAX_SIZES};
 
 use crate::error::{Error, ErrorKind, Result};
 use crate::kmeans::{CheckedTrainConfig, Constraint, TrainConfig};
+use crate::vectors::VectorSet;
 
 use self::grow::{grow, scratch, Stage, Subject};
 use self::kneedle::{knee, Bend, Direction, DEFAULT_SENSITIVITY};
@@ -512,6 +513,11 @@ pub enum CurveEvent {
         index: usize,
         /// How many are listed.
         of: usize,
+        /// Sum of the listed sizes before this one: work done, in
+        /// codewords (training costs about as much per codeword).
+        done: u64,
+        /// Sum of all listed sizes.
+        total: u64,
     },
     /// A size between two listed ones starts training for the target.
     Searching {
@@ -663,11 +669,14 @@ fn run(
     let list = sizes.as_slice();
     let mut stages: Vec<Stage> = Vec::with_capacity(list.len());
     let mut points: Vec<CurvePoint> = Vec::with_capacity(list.len());
+    let total: u64 = list.iter().map(|&k| k as u64).sum();
     for (index, &size) in list.iter().enumerate() {
         observe(CurveEvent::Listed {
             size,
             index,
             of: list.len(),
+            done: list[..index].iter().map(|&k| k as u64).sum(),
+            total,
         });
         let (stage, point) = match stages.last() {
             None => engine.scratch(size)?,
@@ -688,7 +697,8 @@ fn run(
         stages.push(stage);
         points.push(point);
     }
-    let knee = curve_knee(&points, cfg.sensitivity)?;
+    let origin = variance_per_component(engine.subject.vectors);
+    let knee = curve_knee(origin, &points, cfg.sensitivity)?;
     let mut searched = Vec::new();
     let recommendation = match cfg.target {
         None => match knee {
@@ -731,14 +741,57 @@ fn run(
 }
 
 /// The knee of log distortion against size (Kneedle, convex and
-/// decreasing), among the points with some distortion left. Distortion
-/// spans orders of magnitude: on a linear scale the first steep drops hide
-/// the later ones (five separated clusters then show their knee at four).
-fn curve_knee(points: &[CurvePoint], sensitivity: f64) -> Result<Option<usize>> {
-    let kept: Vec<&CurvePoint> = points.iter().filter(|p| p.distortion > 0.0).collect();
-    let x: Vec<f64> = kept.iter().map(|p| p.size as f64).collect();
-    let y: Vec<f64> = kept.iter().map(|p| p.distortion.ln()).collect();
-    Ok(knee(&x, &y, sensitivity, Bend::Convex, Direction::Decreasing)?.map(|k| kept[k.index].size))
+/// decreasing), among the points with some distortion left.
+///
+/// Two choices, both measured: distortion spans orders of magnitude, and on
+/// a linear scale the first steep drops hide later ones (five separated
+/// clusters then show their knee at four), hence the logarithm; and the
+/// curve starts at size 1, whose distortion `origin` is the data's variance
+/// per component (the mean is the one-codeword codebook), whether or not 1
+/// is listed, so where the list starts does not move the knee (on the wine
+/// table, sizes 2..16 alone put it at 8, from size 1 at 4). A knee at the
+/// unlisted size 1 counts as none.
+fn curve_knee(origin: f64, points: &[CurvePoint], sensitivity: f64) -> Result<Option<usize>> {
+    let mut curve: Vec<(usize, f64)> = Vec::with_capacity(points.len() + 1);
+    if points.first().is_some_and(|p| p.size > 1) && origin > 0.0 {
+        curve.push((1, origin));
+    }
+    curve.extend(
+        points
+            .iter()
+            .filter(|p| p.distortion > 0.0)
+            .map(|p| (p.size, p.distortion)),
+    );
+    let x: Vec<f64> = curve.iter().map(|c| c.0 as f64).collect();
+    let y: Vec<f64> = curve.iter().map(|c| c.1.ln()).collect();
+    let found = knee(&x, &y, sensitivity, Bend::Convex, Direction::Decreasing)?;
+    Ok(found
+        .map(|k| curve[k.index].0)
+        .filter(|&size| points.iter().any(|p| p.size == size)))
+}
+
+/// Σ weight × ‖x − mean‖² / (total weight × dimension): the distortion of
+/// the best one-codeword codebook, per component.
+pub(crate) fn variance_per_component(v: &VectorSet) -> f64 {
+    let d = v.dimension();
+    let total = v.total_weight();
+    let mut mean = vec![0.0f64; d];
+    for (i, r) in v.rows().enumerate() {
+        for (m, &x) in mean.iter_mut().zip(r) {
+            *m += v.weight(i) * x as f64;
+        }
+    }
+    mean.iter_mut().for_each(|m| *m /= total);
+    let mut sum = 0.0;
+    for (i, r) in v.rows().enumerate() {
+        let sq: f64 = r
+            .iter()
+            .zip(&mean)
+            .map(|(&x, m)| (x as f64 - m).powi(2))
+            .sum();
+        sum += v.weight(i) * sq;
+    }
+    sum / (total * d as f64)
 }
 
 /// The smallest size meeting `target` (for a byte budget: the lowest

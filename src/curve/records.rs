@@ -17,7 +17,7 @@ use crate::vectors::VectorSet;
 
 use super::grow::Stage;
 use super::holdout::holdout_blocks;
-use super::{CurvePoint, HeldOut, Quality, Rate};
+use super::{variance_per_component, CurvePoint, HeldOut, Quality, Rate};
 
 /// Record tables ready for a curve: the layout fitted on the training rows,
 /// every vector, and which are held out.
@@ -106,15 +106,15 @@ impl RecordSource {
             Some(_) => Some(pick(true)?),
             None => None,
         };
-        let variance = mean_variance(&training);
+        let unique = training.deduplicated();
         Ok(RecordSource {
             tables: tables.to_vec(),
+            variance: variance_per_component(&unique),
             layout,
-            unique: training.deduplicated(),
+            unique,
             all,
             per_table: frames,
             held,
-            variance,
             notices,
         })
     }
@@ -215,24 +215,4 @@ impl RecordSource {
             holdout,
         })
     }
-}
-
-/// Mean over components of the population variance of unweighted vectors.
-fn mean_variance(v: &VectorSet) -> f64 {
-    let d = v.dimension();
-    let n = v.len() as f64;
-    let mut mean = vec![0.0f64; d];
-    for r in v.rows() {
-        for (m, &x) in mean.iter_mut().zip(r) {
-            *m += x as f64;
-        }
-    }
-    mean.iter_mut().for_each(|m| *m /= n);
-    let mut var = 0.0;
-    for r in v.rows() {
-        for (m, &x) in mean.iter().zip(r) {
-            var += (x as f64 - m).powi(2);
-        }
-    }
-    var / (n * d as f64)
 }
