@@ -31,7 +31,7 @@ fn target_of(t: &TargetArgs) -> Option<Target> {
 }
 
 /// The cautions every curve report carries.
-fn cautions(kind: InputKind) -> Vec<String> {
+pub(super) fn cautions(kind: InputKind) -> Vec<String> {
     let mut c = vec![
         "these figures measure the data given here (and its held-out part), not future data; check the encode report of each new file".to_string(),
     ];
@@ -115,6 +115,43 @@ pub fn run(a: CurveArgs) -> Result<()> {
         }
     };
 
+    let curve = measure_with_progress(&source, &config)?;
+    if let Verdict::Unreached { best_size, .. } = curve.recommendation.verdict {
+        let example = match target {
+            Some(Target::MaxBytes(_)) => String::new(),
+            _ => format!(
+                " (e.g. --sizes {best_size}..{})",
+                best_size.saturating_mul(4)
+            ),
+        };
+        anyhow::bail!("curve: {}{example}", curve.recommendation.reason);
+    }
+    write_outputs(
+        &curve,
+        &plot_title(&a.inputs, &curve),
+        a.table.as_deref(),
+        a.plot.as_deref(),
+    )?;
+    let seconds = started.elapsed().as_secs_f64();
+    notices(&curve.notices);
+    let cautions = cautions(kind);
+    if a.json {
+        print_json(&report_json(&a, &curve, &cautions, seconds))?;
+    } else {
+        print_report(&a, &curve, seconds)?;
+    }
+    for c in &cautions {
+        eprintln!("caution: {c}");
+    }
+    Ok(())
+}
+
+/// Measures the curve with a progress bar over the listed sizes (weighted
+/// by size, as training costs) on stderr, hidden when it is not a terminal.
+pub(super) fn measure_with_progress(
+    source: &CurveSource,
+    config: &vqforge::curve::CheckedCurveConfig,
+) -> Result<Curve> {
     let bar: OnceLock<indicatif::ProgressBar> = OnceLock::new();
     let observe = |e: CurveEvent| match e {
         CurveEvent::Listed {
@@ -134,36 +171,34 @@ pub fn run(a: CurveArgs) -> Result<()> {
             }
         }
     };
-    let curve = measure_curve(&source, &config, &observe)?;
+    let curve = measure_curve(source, config, &observe)?;
     if let Some(b) = bar.get() {
         b.finish_and_clear();
     }
-    if let Verdict::Unreached { best_size, .. } = curve.recommendation.verdict {
-        let hint = match target {
-            Some(Target::MaxBytes(_)) => "allow more bytes".to_string(),
-            _ => format!(
-                "try larger sizes, e.g. --sizes {best_size}..{}",
-                best_size.saturating_mul(4)
-            ),
-        };
-        anyhow::bail!("curve: {}; {hint}", curve.recommendation.reason);
-    }
+    Ok(curve)
+}
 
-    // Both files are made in memory before either is written, so a failure
-    // leaves neither half-done.
-    let table = match &a.table {
+/// Writes the CSV table and the SVG plot of `curve` (those asked for),
+/// both made in memory first so a failure leaves neither half-done.
+pub(super) fn write_outputs(
+    curve: &Curve,
+    title: &str,
+    table: Option<&Path>,
+    plot: Option<&Path>,
+) -> Result<()> {
+    let table_bytes = match table {
         Some(_) => {
             let mut bytes = Vec::new();
-            write_curve_csv(&mut bytes, &curve)?;
+            write_curve_csv(&mut bytes, curve)?;
             Some(bytes)
         }
         None => None,
     };
-    let plot = match &a.plot {
-        Some(_) => Some(curve_svg(&curve, &plot_title(&a.inputs, &curve))?),
+    let svg = match plot {
+        Some(_) => Some(curve_svg(curve, title)?),
         None => None,
     };
-    if let (Some(path), Some(bytes)) = (&a.table, &table) {
+    if let (Some(path), Some(bytes)) = (table, &table_bytes) {
         let mut file =
             AtomicFile::create(path).with_context(|| format!("writing {}", path.display()))?;
         std::io::Write::write_all(&mut file, bytes)
@@ -171,25 +206,14 @@ pub fn run(a: CurveArgs) -> Result<()> {
         file.commit()
             .with_context(|| format!("writing {}", path.display()))?;
     }
-    if let (Some(path), Some(svg)) = (&a.plot, &plot) {
+    if let (Some(path), Some(svg)) = (plot, &svg) {
         write_atomic(path, svg.as_bytes())
             .with_context(|| format!("writing {}", path.display()))?;
-    }
-    let seconds = started.elapsed().as_secs_f64();
-    notices(&curve.notices);
-    let cautions = cautions(kind);
-    if a.json {
-        print_json(&report_json(&a, &curve, &cautions, seconds))?;
-    } else {
-        print_report(&a, &curve, seconds)?;
-    }
-    for c in &cautions {
-        eprintln!("caution: {c}");
     }
     Ok(())
 }
 
-fn plot_title(inputs: &[std::path::PathBuf], curve: &Curve) -> String {
+pub(super) fn plot_title(inputs: &[std::path::PathBuf], curve: &Curve) -> String {
     let names: Vec<String> = inputs
         .iter()
         .map(|p| {
@@ -205,7 +229,7 @@ fn plot_title(inputs: &[std::path::PathBuf], curve: &Curve) -> String {
     format!("{} — {growth}", names.join(", "))
 }
 
-fn point_json(p: &CurvePoint) -> Value {
+pub(super) fn point_json(p: &CurvePoint) -> Value {
     let mut v = json!({
         "size": p.size,
         "mse": p.mse,

@@ -5,6 +5,7 @@ mod args;
 mod curve;
 mod decode;
 mod demo;
+mod demo_curves;
 mod demo_images;
 mod encode;
 mod info;

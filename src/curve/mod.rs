@@ -705,7 +705,7 @@ fn run(
             Some(size) => Recommendation {
                 verdict: Verdict::Knee { size },
                 reason: format!(
-                    "the knee of the curve (Kneedle on log distortion against size): beyond {size} codewords each one added buys much less"
+                    "the knee of the curve, by Kneedle on log distortion against size: beyond {size} codewords each one added buys much less"
                 ),
             },
             None => Recommendation {
@@ -823,10 +823,10 @@ fn search(
             })
         }
         .expect("at least one point");
-        let range = if budget {
-            "smaller sizes"
+        let fix = if budget {
+            "allow more bytes"
         } else {
-            "larger sizes"
+            "measure larger sizes"
         };
         Recommendation {
             verdict: Verdict::Unreached {
@@ -834,7 +834,7 @@ fn search(
                 best: target.figure(best),
             },
             reason: format!(
-                "no size measured meets {}: the closest is size {} with {}; measure {range}",
+                "no size measured meets {}: the closest is size {} with {}; {fix}",
                 target.describe(),
                 best.size,
                 show_figure(target, best)
