@@ -169,7 +169,8 @@ fn record_report_keys_monotone_mse_and_rate_against_train_and_encode() {
 #[test]
 fn knee_of_the_wine_table_is_its_three_cultivars() {
     // scikit-learn's load_wine holds 178 wines from 3 cultivars (59, 71
-    // and 48 of them; scikit-learn's dataset description). The labels are
+    // and 48 of them; scikit-learn's dataset description, counts from
+    // memory). The labels are
     // not in tests/data/wine.csv, so the curve sees only the 13 features.
     let dir = sandbox();
     for sizes in ["2..10", "1..12", "2..8"] {
@@ -300,6 +301,24 @@ fn psnr_target_on_a_photo_matches_palette_output() {
     assert!(psnr(k) >= target, "size {k}");
     assert!(psnr(k - 1) < target, "size {}", k - 1);
     assert_close("psnr", num(point(&v, k), "psnr_db"), psnr(k), 1e-9);
+
+    // A mean CIEDE2000 target, grown by splitting: the answer meets it and
+    // the size below, trained by the search, does not.
+    let v = json(
+        d,
+        &[
+            "curve",
+            "c.png",
+            "--sizes",
+            "4,32",
+            "--target-de",
+            "3",
+            "--json",
+        ],
+    );
+    let k = int(&v, "recommended");
+    assert!(num(point(&v, k), "delta_e2000_mean") <= 3.0);
+    assert!(num(point(&v, k - 1), "delta_e2000_mean") > 3.0, "{v}");
 }
 
 #[test]

@@ -44,7 +44,8 @@ fn gaussian_points_stay_above_shannon_bound_and_near_max_1960() {
     // Shannon's rate-distortion function of a memoryless Gaussian source
     // with variance σ², squared error: D(R) = σ²·2^(−2R) per sample, R in
     // bits per sample (Cover & Thomas, "Elements of Information Theory",
-    // 2nd ed., section 10.3.2). No quantiser reaches below it, whether its
+    // 2nd ed., section 10.3.2; section number from memory). No quantiser
+    // reaches below it, whether its
     // indices are sent at ⌈log2 k⌉ bits or entropy-coded (the index
     // entropy is then the rate).
     let mut rng = SeededRng::new(1948);
@@ -85,7 +86,8 @@ fn gaussian_points_stay_above_shannon_bound_and_near_max_1960() {
 
 #[test]
 fn two_dimensional_gaussian_stays_above_shannon_bound() {
-    // Cover & Thomas (section 10.3.3, independent Gaussian components):
+    // Cover & Thomas (section 10.3.3, from memory: independent Gaussian
+    // components, reverse water-filling with equal variances):
     // for d independent components of variance σ², a rate of R bits per
     // vector gives at least σ²·2^(−2R/d) per component.
     let mut rng = SeededRng::new(2);

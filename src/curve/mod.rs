@@ -583,6 +583,7 @@ pub fn measure_curve(
                 held_out: r.held_out() as u64,
                 raw_bytes: r.raw_bytes(),
                 largest: r.distinct(),
+                smallest: 1,
                 what: "distinct vectors",
                 target_mse,
                 notices: r.notices.clone(),
@@ -619,6 +620,7 @@ pub fn measure_curve(
                 held_out: i.held_out(),
                 raw_bytes: i.raw_bytes(),
                 largest: i.largest(),
+                smallest: i.input.layout.pinned.len() + i.reserved() + 1,
                 what: "distinct colours (pinned and transparent entries included)",
                 target_mse,
                 notices: i.notices.clone(),
@@ -644,6 +646,7 @@ struct Facts {
     held_out: u64,
     raw_bytes: u64,
     largest: usize,
+    smallest: usize,
     what: &'static str,
     target_mse: Option<f64>,
     notices: Vec<String>,
@@ -662,7 +665,22 @@ fn run(
     let mut notices = facts.notices;
     let sizes = match &cfg.sizes {
         Some(s) => s.clone(),
-        None => default_sizes(facts.kind, facts.vectors as usize),
+        None => {
+            // Pinned colours and the transparent entry come before any
+            // trained entry: defaults start above them.
+            let d = default_sizes(facts.kind, facts.vectors as usize);
+            let kept: Vec<usize> = d
+                .as_slice()
+                .iter()
+                .copied()
+                .filter(|&k| k >= facts.smallest)
+                .collect();
+            if kept.is_empty() {
+                Sizes::new(vec![facts.smallest])?
+            } else {
+                Sizes::new(kept)?
+            }
+        }
     };
     let (sizes, note) = sizes.clip(facts.largest, facts.what);
     notices.extend(note);
