@@ -520,6 +520,18 @@ pub fn stream_to_bytes(header: &StreamHeader, indices: &[u32]) -> Result<Vec<u8>
     Ok(end_file(out))
 }
 
+/// Bytes of the stream file [`stream_to_bytes`] writes for `header` and
+/// `header.vectors` indices, without packing them: what a stream costs.
+pub fn stream_file_len(header: &StreamHeader) -> Result<u64> {
+    const STAGE: &str = "sizing stream";
+    check_stream_header(STAGE, header)?;
+    let header_bytes = postcard::to_allocvec(header)
+        .map_err(|e| format_error(STAGE, format!("the header cannot be serialised: {e}")))?;
+    let payload = packed_len(header.vectors, header.bits)
+        .ok_or_else(|| format_error(STAGE, "the stream is too long to size".into()))?;
+    Ok(FIXED_LEN as u64 + header_bytes.len() as u64 + payload)
+}
+
 /// Reads a stream from its file's bytes, refusing anything malformed,
 /// corrupted, truncated or inconsistent, including any index not below the
 /// header's codebook size.
@@ -732,6 +744,18 @@ mod tests {
 
     fn message(e: Error) -> String {
         e.to_string()
+    }
+
+    #[test]
+    fn stream_length_without_packing_is_the_written_length() {
+        for (size, vectors) in [(4u64, 4u64), (3, 0), (1000, 12_345), (70_000, 77)] {
+            let header = stream_header(size, vectors);
+            let written = stream_to_bytes(&header, &vec![0; vectors as usize]).unwrap();
+            assert_eq!(stream_file_len(&header).unwrap(), written.len() as u64);
+        }
+        let mut wrong = stream_header(4, 4);
+        wrong.bits = 5;
+        assert!(stream_file_len(&wrong).is_err());
     }
 
     #[test]

@@ -15,9 +15,11 @@
 //!                              encode::Encoder (k-d tree / scan) ─► indices ─► format (stream file)
 //!                                                                      │
 //!             metrics ◄── export (CSV rows) ◄── records::decode_to_writer ◄──┘
+//!
+//!  records or images ─► curve (a codebook per size, grown by splitting) ─► points, knee, target ─► export (CSV table, SVG plot)
 //! ```
 //!
-//! Algorithm modules ([`kmeans`], [`encode`], [`metrics`]) work on in-memory
+//! Algorithm modules ([`kmeans`], [`encode`], [`metrics`], [`curve`]) work on in-memory
 //! data and never open files; only [`load`], [`format`](mod@format), [`atomic`] and
 //! [`export`] touch I/O, through readers and writers the caller supplies
 //! (or, for the file formats, paths).
@@ -46,6 +48,7 @@
 pub mod atomic;
 pub mod codebook;
 pub mod colour;
+pub mod curve;
 pub mod encode;
 pub mod error;
 pub mod export;

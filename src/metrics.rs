@@ -111,6 +111,18 @@ pub fn psnr_db(peak: f64, mse: f64) -> Option<f64> {
     snr_db(peak * peak, mse)
 }
 
+/// ‖a − b‖² in f64 from explicit differences (no |a|² − 2ab + |b|²
+/// shortcut): the figure reports give.
+pub fn squared_error(a: &[f32], b: &[f32]) -> f64 {
+    a.iter()
+        .zip(b)
+        .map(|(&x, &y)| {
+            let e = x as f64 - y as f64;
+            e * e
+        })
+        .sum()
+}
+
 /// How often each of `size` codewords is used.
 pub fn index_counts(indices: &[u32], size: usize) -> Vec<u64> {
     let mut counts = vec![0u64; size];

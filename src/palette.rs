@@ -262,6 +262,197 @@ pub struct PaletteTraining {
     pub notices: Vec<String>,
 }
 
+/// What a palette is trained on: the distinct colours of some pixels after
+/// alpha handling, weighted by how many pixels have them, in the working
+/// space, with the pinned colours and the display's grid.
+#[derive(Debug, Clone)]
+pub struct PaletteInput {
+    /// What the palette's codewords will mean.
+    pub layout: PixelLayout,
+    /// Distinct colours after alpha handling (fully transparent pixels
+    /// excluded), sorted, with their pixel counts.
+    pub colours: Vec<([u8; 4], u64)>,
+    /// `colours` in the working space, weighted by their counts.
+    pub vectors: VectorSet,
+    /// The pinned colours in the working space, flat, in the order given.
+    pub fixed: Vec<f32>,
+    /// Pixels counted, fully transparent ones included.
+    pub pixels: u64,
+    /// Fully transparent pixels.
+    pub transparent: u64,
+    grid: Grid,
+}
+
+impl PaletteInput {
+    /// The input of a palette for all `images`.
+    pub fn new(images: &[RgbaImage], config: &PaletteConfig) -> Result<PaletteInput> {
+        let histogram: Vec<([u8; 4], u64)> = images.iter().flat_map(colour_histogram).collect();
+        Self::from_histogram(&histogram, config)
+    }
+
+    /// The input of a palette for pixels given as (RGBA colour, pixel
+    /// count) pairs, as read (before alpha handling).
+    pub fn from_histogram(
+        histogram: &[([u8; 4], u64)],
+        config: &PaletteConfig,
+    ) -> Result<PaletteInput> {
+        config.check()?;
+        let mut transparent = 0u64;
+        let mut pixels = 0u64;
+        // Colours after alpha handling with their pixel counts: sorted, then
+        // equal ones merged (several images, or compositing, can give one
+        // colour twice).
+        let mut colours: Vec<([u8; 4], u64)> = Vec::with_capacity(histogram.len());
+        for &(c, n) in histogram {
+            pixels += n;
+            if c[3] == 0 {
+                transparent += n;
+            } else {
+                colours.push((handled(c, config.alpha), n));
+            }
+        }
+        colours.sort_unstable();
+        colours.dedup_by(|later, kept| {
+            let same = later.0 == kept.0;
+            if same {
+                kept.1 += later.1;
+            }
+            same
+        });
+        if colours.is_empty() {
+            return Err(Error::new(
+                STAGE,
+                ErrorKind::Shape(
+                    "every pixel is fully transparent; there are no colours to fit".into(),
+                ),
+            ));
+        }
+        let layout = PixelLayout {
+            space: config.space,
+            display: config.display,
+            alpha: config.alpha,
+            transparent_entry: transparent > 0,
+            pinned: config.keep.clone(),
+        };
+        let d = layout.dimension();
+        let mut data = Vec::with_capacity(colours.len() * d);
+        for (c, _) in &colours {
+            working(*c, &layout, &mut data);
+        }
+        let weights: Vec<f64> = colours.iter().map(|(_, n)| *n as f64).collect();
+        let vectors = VectorSet::new(d, data)?.with_weights(weights)?;
+        let mut fixed = Vec::new();
+        for c in &config.keep {
+            working([c[0], c[1], c[2], 255], &layout, &mut fixed);
+        }
+        Ok(PaletteInput {
+            grid: Grid::new(config.space, config.display),
+            layout,
+            colours,
+            vectors,
+            fixed,
+            pixels,
+            transparent,
+        })
+    }
+
+    /// Entries taken by the transparent entry (0 or 1).
+    pub fn reserved(&self) -> usize {
+        usize::from(self.layout.transparent_entry)
+    }
+
+    /// Codewords to train for a palette of `size` entries in all: `size`
+    /// less the transparent entry. Fails when nothing is left for colours
+    /// or the pinned colours do not fit.
+    pub fn trained_size(&self, size: usize) -> Result<usize> {
+        let reserved = self.reserved();
+        if size <= reserved {
+            return Err(Error::new(
+                STAGE,
+                ErrorKind::InvalidParameter(format!(
+                    "the image has fully transparent pixels, which take one palette entry; a palette of {size} leaves none for colours"
+                )),
+            ));
+        }
+        if self.layout.pinned.len() + reserved > size {
+            return Err(Error::new(
+                STAGE,
+                ErrorKind::InvalidParameter(format!(
+                    "{} pinned colours and the transparent entry do not fit in a palette of {size}",
+                    self.layout.pinned.len()
+                )),
+            ));
+        }
+        Ok(size - reserved)
+    }
+
+    /// Moves one working-space codeword onto the nearest colour the display
+    /// shows (alpha, when kept, onto a whole 8-bit step in 1..=255).
+    pub fn snap(&self, v: &mut [f32]) {
+        let s = self.grid.snap_working(&[v[0], v[1], v[2]]);
+        v[..3].copy_from_slice(&s);
+        if v.len() == 4 {
+            let ascale = alpha_scale(self.layout.space);
+            let a = (v[3] / ascale).round().clamp(1.0, 255.0);
+            v[3] = a * ascale;
+        }
+    }
+
+    /// The palette codebook of trained working-space `codewords` (pinned
+    /// ones first): entries ordered by `order`, the transparent entry first
+    /// when reserved.
+    pub fn codebook(
+        &self,
+        codewords: &[f32],
+        training: TrainingFacts,
+        order: PaletteOrder,
+    ) -> Result<Codebook> {
+        let d = self.layout.dimension();
+        let space = self.layout.space;
+        let k = codewords.len() / d;
+        let encoder = Encoder::new(codewords, d)?;
+        let labels = encoder.encode(&self.vectors)?;
+        let mut use_count = vec![0u64; k];
+        for (l, (_, n)) in labels.iter().zip(&self.colours) {
+            use_count[*l as usize] += n;
+        }
+        let rgb: Vec<[u8; 3]> = codewords
+            .chunks_exact(d)
+            .map(|c| space.to_rgb8([c[0], c[1], c[2]]))
+            .collect();
+        let mut entries: Vec<usize> = (0..k).collect();
+        match order {
+            PaletteOrder::Frequency => {
+                entries.sort_by(|&a, &b| use_count[b].cmp(&use_count[a]).then(a.cmp(&b)))
+            }
+            PaletteOrder::Lightness => entries.sort_by(|&a, &b| {
+                rgb8_to_lab(rgb[a])[0]
+                    .total_cmp(&rgb8_to_lab(rgb[b])[0])
+                    .then(a.cmp(&b))
+            }),
+        }
+        let mut out = Vec::with_capacity((k + self.reserved()) * d);
+        if self.layout.transparent_entry {
+            let bg = match self.layout.alpha {
+                AlphaMode::Composite { background } => background,
+                AlphaMode::Keep => [0, 0, 0],
+            };
+            working([bg[0], bg[1], bg[2], 0], &self.layout, &mut out);
+        }
+        for &i in &entries {
+            out.extend_from_slice(&codewords[i * d..(i + 1) * d]);
+        }
+        let codebook = Codebook {
+            dimension: d,
+            codewords: out,
+            meaning: Meaning::Pixels(self.layout.clone()),
+            training,
+        };
+        codebook.validate()?;
+        Ok(codebook)
+    }
+}
+
 /// Trains one palette for all `images`.
 pub fn train_palette(
     images: &[RgbaImage],
@@ -269,151 +460,45 @@ pub fn train_palette(
     train: &CheckedTrainConfig,
     observe: &(dyn Fn(TrainEvent) + Sync),
 ) -> Result<PaletteTraining> {
-    config.check()?;
-    let mut transparent = 0u64;
-    let mut pixels = 0u64;
-    // Colours after alpha handling with their pixel counts: sorted, then
-    // equal ones merged (compositing can make two colours one).
-    let mut colours: Vec<([u8; 4], u64)> = Vec::new();
-    for img in images {
-        pixels += img.pixels.len() as u64;
-        for (c, n) in colour_histogram(img) {
-            if c[3] == 0 {
-                transparent += n;
-            } else {
-                colours.push((handled(c, config.alpha), n));
-            }
-        }
-    }
-    colours.sort_unstable();
-    colours.dedup_by(|later, kept| {
-        let same = later.0 == kept.0;
-        if same {
-            kept.1 += later.1;
-        }
-        same
-    });
-    let layout = PixelLayout {
-        space: config.space,
-        display: config.display,
-        alpha: config.alpha,
-        transparent_entry: transparent > 0,
-        pinned: config.keep.clone(),
-    };
-    let mut notices = Vec::new();
-    let reserved = usize::from(layout.transparent_entry);
-    if colours.is_empty() {
-        return Err(Error::new(
-            STAGE,
-            ErrorKind::Shape(
-                "every pixel is fully transparent; there are no colours to fit".into(),
-            ),
-        ));
-    }
-    if config.size <= reserved {
-        return Err(Error::new(
-            STAGE,
-            ErrorKind::InvalidParameter(format!(
-                "the image has fully transparent pixels, which take one palette entry; a palette of {} leaves none for colours",
-                config.size
-            )),
-        ));
-    }
-    if config.keep.len() + reserved > config.size {
-        return Err(Error::new(
-            STAGE,
-            ErrorKind::InvalidParameter(format!(
-                "{} pinned colours and the transparent entry do not fit in a palette of {}",
-                config.keep.len(),
-                config.size
-            )),
-        ));
-    }
-    if reserved == 1 {
-        notices.push(format!(
-            "{transparent} fully transparent pixels share palette entry 0 (alpha 0)"
-        ));
-    }
-    let d = layout.dimension();
-    let mut data = Vec::with_capacity(colours.len() * d);
-    for (c, _) in &colours {
-        working(*c, &layout, &mut data);
-    }
-    let weights: Vec<f64> = colours.iter().map(|(_, n)| *n as f64).collect();
-    let vectors = VectorSet::new(d, data)?.with_weights(weights)?;
+    let input = PaletteInput::new(images, config)?;
+    train_input(&input, config, train, observe)
+}
 
-    let mut fixed = Vec::new();
-    for c in &config.keep {
-        working([c[0], c[1], c[2], 255], &layout, &mut fixed);
+/// Trains a palette of `config.size` entries on a prepared input.
+pub fn train_input(
+    input: &PaletteInput,
+    config: &PaletteConfig,
+    train: &CheckedTrainConfig,
+    observe: &(dyn Fn(TrainEvent) + Sync),
+) -> Result<PaletteTraining> {
+    let mut notices = Vec::new();
+    let size = input.trained_size(config.size)?;
+    if input.transparent > 0 {
+        notices.push(format!(
+            "{} fully transparent pixels share palette entry 0 (alpha 0)",
+            input.transparent
+        ));
     }
-    let grid = Grid::new(config.space, config.display);
-    let ascale = alpha_scale(config.space);
-    let snap = |v: &mut [f32]| {
-        let s = grid.snap_working(&[v[0], v[1], v[2]]);
-        v[..3].copy_from_slice(&s);
-        if v.len() == 4 {
-            let a = (v[3] / ascale).round().clamp(1.0, 255.0);
-            v[3] = a * ascale;
-        }
-    };
+    let snap = |v: &mut [f32]| input.snap(v);
     let constraint = Constraint {
-        fixed: &fixed,
+        fixed: &input.fixed,
         snap: Some(&snap),
     };
     let mut cfg = train.get().clone();
-    cfg.size = config.size - reserved;
+    cfg.size = size;
     let checked = cfg.check()?;
-    let trained = train_constrained(&vectors, &checked, constraint, observe)?;
+    let trained = train_constrained(&input.vectors, &checked, constraint, observe)?;
     notices.extend(trained.report.notices.iter().cloned());
-
-    // Order the visible entries, then put the transparent one first.
-    let k = trained.codewords.len() / d;
-    let encoder = Encoder::new(&trained.codewords, d)?;
-    let labels = encoder.encode(&vectors)?;
-    let mut use_count = vec![0u64; k];
-    for (l, (_, n)) in labels.iter().zip(&colours) {
-        use_count[*l as usize] += n;
-    }
-    let rgb: Vec<[u8; 3]> = trained
-        .codewords
-        .chunks_exact(d)
-        .map(|c| config.space.to_rgb8([c[0], c[1], c[2]]))
-        .collect();
-    let mut order: Vec<usize> = (0..k).collect();
-    match config.order {
-        PaletteOrder::Frequency => {
-            order.sort_by(|&a, &b| use_count[b].cmp(&use_count[a]).then(a.cmp(&b)))
-        }
-        PaletteOrder::Lightness => order.sort_by(|&a, &b| {
-            rgb8_to_lab(rgb[a])[0]
-                .total_cmp(&rgb8_to_lab(rgb[b])[0])
-                .then(a.cmp(&b))
-        }),
-    }
-    let mut codewords = Vec::with_capacity((k + reserved) * d);
-    if reserved == 1 {
-        let bg = match config.alpha {
-            AlphaMode::Composite { background } => background,
-            AlphaMode::Keep => [0, 0, 0],
-        };
-        working([bg[0], bg[1], bg[2], 0], &layout, &mut codewords);
-    }
-    for &i in &order {
-        codewords.extend_from_slice(&trained.codewords[i * d..(i + 1) * d]);
-    }
-    let report = trained.report;
-    let codebook = Codebook {
-        dimension: d,
-        codewords,
-        meaning: Meaning::Pixels(layout),
-        training: TrainingFacts::from_report(&report),
-    };
-    codebook.validate()?;
+    let codebook = input.codebook(
+        &trained.codewords,
+        TrainingFacts::from_report(&trained.report),
+        config.order,
+    )?;
     Ok(PaletteTraining {
         codebook,
-        report,
-        pixels,
-        distinct_colours: colours.len(),
+        report: trained.report,
+        pixels: input.pixels,
+        distinct_colours: input.colours.len(),
         notices,
     })
 }
@@ -535,23 +620,21 @@ impl Palette {
         })
     }
 
+    /// Palette index of one pixel as read: the transparent entry for a
+    /// fully transparent pixel when the palette reserves one, otherwise the
+    /// entry nearest its colour after alpha handling, in the working space.
+    pub fn index_of(&self, px: [u8; 4]) -> u32 {
+        if let Some(i) = self.reserved_for(px) {
+            return i;
+        }
+        let mut v = Vec::with_capacity(self.layout.dimension());
+        working(handled(px, self.layout.alpha), &self.layout, &mut v);
+        self.nearest(&v)
+    }
+
     fn map_plain(&self, image: &RgbaImage) -> Vec<u32> {
         let hist = colour_histogram(image);
-        let d = self.layout.dimension();
-        let index: Vec<u32> = hist
-            .par_iter()
-            .map_init(
-                || Vec::with_capacity(d),
-                |v, &(c, _)| match self.reserved_for(c) {
-                    Some(i) => i,
-                    None => {
-                        v.clear();
-                        working(handled(c, self.layout.alpha), &self.layout, v);
-                        self.nearest(v)
-                    }
-                },
-            )
-            .collect();
+        let index: Vec<u32> = hist.par_iter().map(|&(c, _)| self.index_of(c)).collect();
         let lookup: PackedMap<u32> = hist
             .iter()
             .zip(index)
@@ -727,17 +810,48 @@ pub fn measure(image: &RgbaImage, indices: &[u32], palette: &Palette) -> Result<
             )),
         ));
     }
-    let keep = palette.layout.alpha == AlphaMode::Keep;
-    let channels = if keep { 4.0 } else { 3.0 };
     let mut pairs: PackedMap<u64> = PackedMap::default();
     for (p, &i) in image.pixels.iter().zip(indices) {
         if palette.reserved_for(*p) == Some(i) {
             continue;
         }
-        let key = packed(handled(*p, palette.layout.alpha)) << 32 | i as u64;
-        *pairs.entry(key).or_insert(0) += 1;
+        *pairs
+            .entry(pair_key(handled(*p, palette.layout.alpha), i))
+            .or_insert(0) += 1;
     }
-    let pairs: Vec<(u64, u64)> = pairs.into_iter().collect();
+    error_of_pairs(pairs, palette)
+}
+
+/// A (colour after alpha handling, palette index) pair as one key.
+fn pair_key(c: [u8; 4], i: u32) -> u64 {
+    packed(c) << 32 | i as u64
+}
+
+/// Measures pixels given as (RGBA colour as read, pixel count) pairs, each
+/// mapped to its nearest entry without dithering ([`Palette::index_of`]):
+/// the same figures [`measure`] gives for an undithered image of them.
+pub fn measure_colours(colours: &[([u8; 4], u64)], palette: &Palette) -> Result<ImageError> {
+    let mut pairs: PackedMap<u64> = PackedMap::default();
+    for &(c, n) in colours {
+        let i = palette.index_of(c);
+        if palette.reserved_for(c) == Some(i) {
+            continue;
+        }
+        *pairs
+            .entry(pair_key(handled(c, palette.layout.alpha), i))
+            .or_insert(0) += n;
+    }
+    error_of_pairs(pairs, palette)
+}
+
+/// The error figures of (colour after alpha handling, palette index) pairs
+/// ([`pair_key`]) → pixel count.
+fn error_of_pairs(pairs: PackedMap<u64>, palette: &Palette) -> Result<ImageError> {
+    let keep = palette.layout.alpha == AlphaMode::Keep;
+    let channels = if keep { 4.0 } else { 3.0 };
+    // A fixed order, so the sums come out the same on every run.
+    let mut pairs: Vec<(u64, u64)> = pairs.into_iter().collect();
+    pairs.sort_unstable();
     if let Some(&(key, _)) = pairs
         .iter()
         .find(|(key, _)| *key as u32 as usize >= palette.entries.len())
@@ -753,7 +867,7 @@ pub fn measure(image: &RgbaImage, indices: &[u32], palette: &Palette) -> Result<
         .map(|e| rgb8_to_lab([e[0], e[1], e[2]]))
         .collect();
     let used = if keep { 4 } else { 3 };
-    // Per (colour, entry) pair: squared error summed over channels, ΔE2000.
+    // Per pair: squared error summed over channels, and CIEDE2000.
     let per_pair: Vec<(f64, f64, u64)> = pairs
         .par_iter()
         .map(|&(key, count)| {

@@ -110,15 +110,14 @@ pub struct RecordTraining {
     pub notices: Vec<String>,
 }
 
-/// Trains a codebook on one or more tables with the same columns. Scaling is
-/// fitted on all rows together; frames never span two tables.
-pub fn train_tables(
-    tables: &[RecordTable],
-    opts: &CsvOptions,
-    config: &CheckedTrainConfig,
-    observe: &(dyn Fn(TrainEvent) + Sync),
-) -> Result<RecordTraining> {
-    let stage = "training on records";
+/// The first of `tables`, after checking they all have its value columns
+/// (errors name `stage`).
+///
+/// # Errors
+///
+/// [`ErrorKind::EmptyInput`] for no tables, [`ErrorKind::Mismatch`] naming
+/// both column lists when two differ.
+pub fn same_columns<'a>(tables: &'a [RecordTable], stage: &'static str) -> Result<&'a RecordTable> {
     let first = tables
         .first()
         .ok_or_else(|| Error::new(stage, ErrorKind::EmptyInput))?;
@@ -134,6 +133,18 @@ pub fn train_tables(
             ));
         }
     }
+    Ok(first)
+}
+
+/// Trains a codebook on one or more tables with the same columns. Scaling is
+/// fitted on all rows together; frames never span two tables.
+pub fn train_tables(
+    tables: &[RecordTable],
+    opts: &CsvOptions,
+    config: &CheckedTrainConfig,
+    observe: &(dyn Fn(TrainEvent) + Sync),
+) -> Result<RecordTraining> {
+    let first = same_columns(tables, "training on records")?;
     let merged = RecordTable::new(
         first.columns.clone(),
         tables

@@ -3,20 +3,15 @@
 //! names the problem, nothing on stdout, no panic, and no file created or
 //! changed in its folder (temporary files included).
 
-use std::collections::BTreeMap;
-use std::path::{Path, PathBuf};
 use std::process::Command;
 
 use tempfile::TempDir;
 
+mod common;
+use common::{data, fails};
+
 const USAGE: i32 = 2;
 const FAILURE: i32 = 1;
-
-fn data(name: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("tests/data")
-        .join(name)
-}
 
 /// A fresh folder holding copies of the sample tables.
 fn sandbox() -> TempDir {
@@ -61,68 +56,6 @@ fn wine_book(dir: &TempDir, book: &str, seed: &str) {
 fn wine_book_and_stream(dir: &TempDir) {
     wine_book(dir, "w.vqb", "1");
     prepare(dir, &["encode", "wine.csv", "-b", "w.vqb", "-o", "w.vqs"]);
-}
-
-/// Every file under `root` (folders included, as empty entries) with its bytes.
-fn snapshot(root: &Path) -> BTreeMap<PathBuf, Vec<u8>> {
-    let mut files = BTreeMap::new();
-    let mut pending = vec![root.to_path_buf()];
-    while let Some(folder) = pending.pop() {
-        for entry in std::fs::read_dir(&folder).unwrap() {
-            let path = entry.unwrap().path();
-            let rel = path.strip_prefix(root).unwrap().to_path_buf();
-            if path.is_dir() {
-                files.insert(rel, Vec::new());
-                pending.push(path);
-            } else {
-                files.insert(rel, std::fs::read(&path).unwrap());
-            }
-        }
-    }
-    files
-}
-
-/// Runs `args` in `dir` and checks the failure: exit code, one `error:`
-/// line holding every phrase, empty stdout, no panic, folder unchanged.
-fn fails(dir: &TempDir, args: &[&str], code: i32, phrases: &[&str]) {
-    let before = snapshot(dir.path());
-    let out = Command::new(env!("CARGO_BIN_EXE_vqforge"))
-        .current_dir(dir.path())
-        .args(args)
-        .output()
-        .unwrap();
-    let stderr = String::from_utf8_lossy(&out.stderr);
-    assert_eq!(out.status.code(), Some(code), "vqforge {args:?}: {stderr}");
-    let lines: Vec<&str> = stderr.lines().collect();
-    assert_eq!(
-        lines.len(),
-        1,
-        "vqforge {args:?}: stderr is not one line: {stderr}"
-    );
-    assert!(lines[0].starts_with("error: "), "{stderr}");
-    assert!(!stderr.contains("panicked"), "{stderr}");
-    for phrase in phrases {
-        assert!(
-            lines[0].contains(phrase),
-            "vqforge {args:?}: {phrase:?} is not in: {stderr}"
-        );
-    }
-    assert!(
-        out.stdout.is_empty(),
-        "vqforge {args:?} printed: {}",
-        String::from_utf8_lossy(&out.stdout)
-    );
-    let after = snapshot(dir.path());
-    let changed: Vec<_> = after
-        .iter()
-        .filter(|(path, bytes)| before.get(*path) != Some(bytes))
-        .map(|(path, _)| path)
-        .collect();
-    assert!(
-        changed.is_empty(),
-        "vqforge {args:?} left files: {changed:?}"
-    );
-    assert_eq!(before.len(), after.len(), "vqforge {args:?} removed a file");
 }
 
 /// Training on a CSV with this text.

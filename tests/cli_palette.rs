@@ -7,27 +7,21 @@
 //! The photo crops come from tests/data/images/chelsea.png (see
 //! tests/fixtures/README.md); small crops keep the runs short.
 
-use std::collections::{BTreeMap, HashSet};
+use std::collections::HashSet;
 use std::io::Cursor;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::process::{Command, Output};
 
 use serde_json::Value;
 
 mod common;
-use common::{assert_close, int, num};
+use common::{assert_close, data, fails, int, num};
 use tempfile::TempDir;
 
 use vqforge::colour::DisplayFormat;
 
 const USAGE: i32 = 2;
 const FAILURE: i32 = 1;
-
-fn data(name: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("tests/data")
-        .join(name)
-}
 
 /// Runs the binary in `dir`.
 fn run(dir: &Path, args: &[&str]) -> Output {
@@ -465,64 +459,6 @@ fn sandbox() -> TempDir {
     std::fs::copy(data("wine.csv"), dir.path().join("wine.csv")).unwrap();
     chelsea_crop(dir.path(), "small.png", 100, 100, 40, 30);
     dir
-}
-
-/// Every file under `root` (folders included, as empty entries) with its bytes.
-fn snapshot(root: &Path) -> BTreeMap<PathBuf, Vec<u8>> {
-    let mut files = BTreeMap::new();
-    let mut pending = vec![root.to_path_buf()];
-    while let Some(folder) = pending.pop() {
-        for entry in std::fs::read_dir(&folder).unwrap() {
-            let path = entry.unwrap().path();
-            let rel = path.strip_prefix(root).unwrap().to_path_buf();
-            if path.is_dir() {
-                files.insert(rel, Vec::new());
-                pending.push(path);
-            } else {
-                files.insert(rel, std::fs::read(&path).unwrap());
-            }
-        }
-    }
-    files
-}
-
-/// Runs `args` in `dir` and checks the failure: exit code, one `error:`
-/// line holding every phrase, empty stdout, no panic, folder unchanged.
-fn fails(dir: &TempDir, args: &[&str], code: i32, phrases: &[&str]) {
-    let before = snapshot(dir.path());
-    let out = run(dir.path(), args);
-    let stderr = String::from_utf8_lossy(&out.stderr);
-    assert_eq!(out.status.code(), Some(code), "vqforge {args:?}: {stderr}");
-    let lines: Vec<&str> = stderr.lines().collect();
-    assert_eq!(
-        lines.len(),
-        1,
-        "vqforge {args:?}: stderr is not one line: {stderr}"
-    );
-    assert!(lines[0].starts_with("error: "), "{stderr}");
-    assert!(!stderr.contains("panicked"), "{stderr}");
-    for phrase in phrases {
-        assert!(
-            lines[0].contains(phrase),
-            "vqforge {args:?}: {phrase:?} is not in: {stderr}"
-        );
-    }
-    assert!(
-        out.stdout.is_empty(),
-        "vqforge {args:?} printed: {}",
-        String::from_utf8_lossy(&out.stdout)
-    );
-    let after = snapshot(dir.path());
-    let changed: Vec<_> = after
-        .iter()
-        .filter(|(path, bytes)| before.get(*path) != Some(bytes))
-        .map(|(path, _)| path)
-        .collect();
-    assert!(
-        changed.is_empty(),
-        "vqforge {args:?} left files: {changed:?}"
-    );
-    assert_eq!(before.len(), after.len(), "vqforge {args:?} removed a file");
 }
 
 /// A PNG chunk: length, type, data, CRC-32 over type and data (PNG

@@ -12,7 +12,7 @@ use std::process::{Command, Output};
 use serde_json::Value;
 
 mod common;
-use common::{assert_close, int, num};
+use common::{assert_close, data, int, num};
 
 const WINE_COLUMNS: [&str; 13] = [
     "alcohol",
@@ -31,12 +31,6 @@ const WINE_COLUMNS: [&str; 13] = [
 ];
 const WEATHER_COLUMNS: [&str; 4] = ["precipitation", "temp_max", "temp_min", "wind"];
 const WEATHER_ROWS: usize = 1461;
-
-fn data(name: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("tests/data")
-        .join(name)
-}
 
 fn fixture(name: &str) -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR"))

@@ -20,32 +20,14 @@ use vqforge::kmeans::{train, Seeding, TrainConfig, Trained};
 use vqforge::rng::SeededRng;
 use vqforge::vectors::VectorSet;
 
+mod common;
+use common::stratified_normal;
+
 /// `n` points on [0, 1), one uniform draw in each interval [j/n, (j+1)/n).
 fn stratified_unit(rng: &mut SeededRng, n: usize) -> Vec<f64> {
     (0..n)
         .map(|j| (j as f64 + rng.unit_f64()) / n as f64)
         .collect()
-}
-
-/// `radial × angular` standard-normal values: the Box–Muller transform
-/// (Box & Muller 1958, "A note on the generation of random normal deviates")
-/// of one uniform point in each cell of a `radial × angular` grid on the unit
-/// square. The transform maps the uniform square onto the normal
-/// distribution, so stratifying its input stratifies its output. Many radial
-/// strata keep the tails, which weigh heavily in the outer cells' error,
-/// finely stratified too.
-fn stratified_normal(rng: &mut SeededRng, radial: usize, angular: usize) -> Vec<f32> {
-    let mut out = Vec::with_capacity(radial * angular);
-    for i in 0..radial {
-        for j in 0..angular {
-            // 1 − u lies in (0, 1], so the logarithm is finite.
-            let u = 1.0 - (i as f64 + rng.unit_f64()) / radial as f64;
-            let v = (j as f64 + rng.unit_f64()) / angular as f64;
-            let x = (-2.0 * u.ln()).sqrt() * (std::f64::consts::TAU * v).cos();
-            out.push(x as f32);
-        }
-    }
-    out
 }
 
 /// Mean over the samples of the squared distance to the nearest codeword,

@@ -24,6 +24,8 @@ pub enum Command {
     Decode(DecodeArgs),
     /// One step for a display: fit a palette to an image and write it as an indexed PNG.
     Palette(PaletteArgs),
+    /// Distortion against codebook size and rate over a range of sizes; recommends a size.
+    Curve(CurveArgs),
     /// Show what a codebook or stream file holds.
     Info(InfoArgs),
     /// Run the whole job on the bundled sample inputs.
@@ -289,6 +291,78 @@ pub struct PaletteArgs {
 
     #[command(flatten)]
     pub kmeans: KmeansArgs,
+
+    /// Print one JSON object instead of a table.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// What the recommended size must reach (at most one).
+#[derive(Debug, Clone, Args)]
+#[group(multiple = false)]
+pub struct TargetArgs {
+    /// Smallest size whose mse is at most X (scaled units for CSV records, 8-bit sRGB per channel for images).
+    #[arg(long, value_name = "X")]
+    pub target_mse: Option<f64>,
+
+    /// Smallest size whose PSNR is at least DB (images).
+    #[arg(long, value_name = "DB")]
+    pub target_psnr: Option<f64>,
+
+    /// Smallest size whose SNR is at least DB (CSV records).
+    #[arg(long, value_name = "DB")]
+    pub target_snr: Option<f64>,
+
+    /// Smallest size whose mean CIEDE2000 is at most X (images).
+    #[arg(long, value_name = "X")]
+    pub target_de: Option<f64>,
+
+    /// The lowest distortion whose stream and codebook together take at most N bytes.
+    #[arg(long, value_name = "N")]
+    pub max_bytes: Option<u64>,
+}
+
+#[derive(Debug, Args)]
+pub struct CurveArgs {
+    /// CSV files with a header row, or images (read together, as by train).
+    #[arg(required = true, value_name = "INPUT")]
+    pub inputs: Vec<PathBuf>,
+
+    /// Sizes to measure: 2..64 (every size in the range) or 2,4,8,16; items may mix
+    /// [default: powers of two up to 256 for images, up to min(1024, vectors/4) for records].
+    #[arg(long, value_name = "SIZES")]
+    pub sizes: Option<String>,
+
+    /// Train every size from scratch, as train and palette do, instead of growing each from the one before.
+    #[arg(long)]
+    pub independent: bool,
+
+    /// Hold out this fraction of the input (above 0, at most 0.9) and report the error on it.
+    #[arg(long, value_name = "F")]
+    pub holdout: Option<f64>,
+
+    #[command(flatten)]
+    pub target: TargetArgs,
+
+    /// Also write the curve as a CSV table.
+    #[arg(long, value_name = "FILE.csv")]
+    pub table: Option<PathBuf>,
+
+    /// Also draw the curve as an SVG plot.
+    #[arg(long, value_name = "FILE.svg")]
+    pub plot: Option<PathBuf>,
+
+    #[command(flatten)]
+    pub read: ReadArgs,
+
+    #[command(flatten)]
+    pub shape: ShapeArgs,
+
+    #[command(flatten)]
+    pub kmeans: KmeansArgs,
+
+    #[command(flatten)]
+    pub colour: ColourArgs,
 
     /// Print one JSON object instead of a table.
     #[arg(long)]

@@ -3,6 +3,8 @@
 //! decode, and show what each size costs and loses. Images: fit 16-colour
 //! RGB565 palettes to the sample splash screen and icons (see
 //! [`super::demo_images`]) and write them as indexed PNGs and C source.
+//! Curves: distortion against size for the log and the splash, with plots
+//! (see [`super::demo_curves`]).
 
 use std::time::Instant;
 
@@ -21,17 +23,20 @@ use super::args::DemoArgs;
 use super::output::{notices, num, print_json, print_table};
 use super::progress;
 
-const LOG: &str = "greenhouse.csv";
-const FRAME: usize = 3;
+/// The sample log, and the rows joined into one vector.
+pub(super) const LOG: &str = "greenhouse.csv";
+pub(super) const FRAME: usize = 3;
 const SIZES: [usize; 4] = [16, 64, 256, 1024];
 
 pub fn run(a: DemoArgs) -> Result<()> {
     let started = Instant::now();
     let mut report = records(&a)?;
     let images = super::demo_images::run(&a)?;
+    let curves = super::demo_curves::run(&a)?;
     let seconds = started.elapsed().as_secs_f64();
     if a.json {
         report["images"] = json!(images);
+        report["curves"] = curves;
         report["out_dir"] = json!(a.out_dir.display().to_string());
         report["seconds"] = json!(seconds);
         return print_json(&report);

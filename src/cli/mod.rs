@@ -2,8 +2,10 @@
 //! library configs; one small function per subcommand.
 
 mod args;
+mod curve;
 mod decode;
 mod demo;
+mod demo_curves;
 mod demo_images;
 mod encode;
 mod info;
@@ -73,6 +75,7 @@ pub fn run() -> Result<ExitCode> {
         Command::Encode(a) => encode::run(a),
         Command::Decode(a) => decode::run(a),
         Command::Palette(a) => palette::run(a),
+        Command::Curve(a) => curve::run(a),
         Command::Info(a) => info::run(a),
         Command::Demo(a) => demo::run(a),
     }?;

@@ -8,7 +8,7 @@ use serde_json::json;
 use vqforge::codebook::Scaling;
 use vqforge::format;
 use vqforge::kmeans::{Seeding, TrainConfig, TrainEvent};
-use vqforge::load::{read_table, CsvOptions, Missing, TimeChoice};
+use vqforge::load::{read_table, CsvOptions, Missing, RecordTable, TimeChoice};
 use vqforge::records::{train_tables, RecordError};
 
 use super::args::{KmeansArgs, MissingArg, ReadArgs, ScaleArg, SeedingArg, ShapeArgs, TrainArgs};
@@ -49,6 +49,17 @@ pub fn csv_options(read: &ReadArgs, shape: Option<&ShapeArgs>) -> Result<CsvOpti
     }
     o.check()?;
     Ok(o)
+}
+
+/// Reads every input as one CSV table.
+pub fn read_tables(inputs: &[std::path::PathBuf], opts: &CsvOptions) -> Result<Vec<RecordTable>> {
+    let mut tables = Vec::new();
+    for input in inputs {
+        let name = input.display().to_string();
+        let file = std::fs::File::open(input).with_context(|| format!("opening input {name}"))?;
+        tables.push(read_table(std::io::BufReader::new(file), &name, opts)?);
+    }
+    Ok(tables)
 }
 
 /// k-means configuration from the flags.
@@ -132,12 +143,7 @@ pub fn run(a: TrainArgs) -> Result<()> {
     let started = Instant::now();
     let opts = csv_options(&a.read, Some(&a.shape))?;
     let config = train_config(a.size, &a.kmeans)?.check()?;
-    let mut tables = Vec::new();
-    for input in &a.inputs {
-        let name = input.display().to_string();
-        let file = std::fs::File::open(input).with_context(|| format!("opening input {name}"))?;
-        tables.push(read_table(std::io::BufReader::new(file), &name, &opts)?);
-    }
+    let tables = read_tables(&a.inputs, &opts)?;
     let bar = progress::spinner("training");
     let restarts = config.get().restarts;
     let observe = |e: TrainEvent| match e {

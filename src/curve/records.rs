@@ -1,0 +1,218 @@
+//! Curves of CSV records: the training and held-out vectors of some tables,
+//! and what a codebook of one size costs and loses on them (distortion in
+//! the scaled space, the largest error in the user's units, rate). Pure:
+//! works on tables already read.
+
+use crate::codebook::{bits_for_size, Codebook, Meaning, RecordLayout};
+use crate::encode::Encoder;
+use crate::error::{Error, ErrorKind, Result};
+use crate::export::undo_scaling;
+use crate::format::{codebook_to_bytes, stream_file_len, RecordInfo, StreamHeader};
+use crate::load::{
+    fit_layout, frames_of, time_axis, to_vectors, CsvOptions, RecordTable, TimeInfo,
+};
+use crate::metrics::{index_counts, index_entropy_bits, snr_db, squared_error};
+use crate::records::{decode_vectors, same_columns, RecordErrorMeter};
+use crate::vectors::VectorSet;
+
+use super::grow::Stage;
+use super::holdout::holdout_blocks;
+use super::{variance_per_component, CurvePoint, HeldOut, Quality, Rate};
+
+/// Record tables ready for a curve: the layout fitted on the training rows,
+/// every vector, and which are held out.
+#[derive(Debug, Clone)]
+pub struct RecordSource {
+    tables: Vec<RecordTable>,
+    layout: RecordLayout,
+    /// Every vector of every table, in order (frames never span two tables).
+    all: VectorSet,
+    /// Vectors per table.
+    per_table: Vec<usize>,
+    /// The training vectors, merged where identical (weighted).
+    pub(super) unique: VectorSet,
+    held: Option<VectorSet>,
+    /// Mean over components of the training vectors' variance (scaled space).
+    pub(super) variance: f64,
+    /// Messages for the user.
+    pub notices: Vec<String>,
+}
+
+fn rows_of(table: &RecordTable, frame: usize, f: usize) -> std::ops::Range<usize> {
+    f * frame..((f + 1) * frame).min(table.rows())
+}
+
+impl RecordSource {
+    /// Prepares `tables` (same columns) with the frame and scaling of `opts`;
+    /// with `holdout`, that fraction of the vectors is held out as
+    /// contiguous blocks ([`holdout_blocks`]) and the scaling is fitted on
+    /// the rest only.
+    pub fn new(tables: &[RecordTable], opts: &CsvOptions, holdout: Option<f64>) -> Result<Self> {
+        let stage = "preparing records";
+        let first = same_columns(tables, stage)?;
+        if opts.frame == 0 {
+            return Err(Error::new(stage, ErrorKind::ZeroFrame));
+        }
+        if tables.iter().any(|t| t.rows() == 0) {
+            return Err(Error::new(stage, ErrorKind::EmptyInput));
+        }
+        let frames: Vec<usize> = tables
+            .iter()
+            .map(|t| frames_of(t.rows(), opts.frame))
+            .collect();
+        let total: usize = frames.iter().sum();
+        let mask = match holdout {
+            Some(f) => holdout_blocks(total, f)?,
+            None => vec![false; total],
+        };
+        let width = first.columns.len();
+        let mut training_rows = Vec::new();
+        let mut at = 0;
+        for (t, &n) in tables.iter().zip(&frames) {
+            for f in 0..n {
+                if !mask[at + f] {
+                    let r = rows_of(t, opts.frame, f);
+                    training_rows.extend_from_slice(&t.values[r.start * width..r.end * width]);
+                }
+            }
+            at += n;
+        }
+        let fitted = fit_layout(
+            &RecordTable::new(first.columns.clone(), training_rows),
+            opts,
+        )?;
+        let mut layout = fitted.layout;
+        layout.time_column = first.times.as_ref().map(|t| t.name.clone());
+        let mut notices: Vec<String> = tables.iter().flat_map(|t| t.notices.clone()).collect();
+        notices.extend(fitted.notices);
+
+        let d = layout.dimension();
+        let mut data = Vec::with_capacity(total * d);
+        for t in tables {
+            data.extend_from_slice(to_vectors(t, &layout)?.as_flat());
+        }
+        let all = VectorSet::new(d, data)?;
+        let pick = |held: bool| -> Result<VectorSet> {
+            let flat: Vec<f32> = all
+                .rows()
+                .zip(&mask)
+                .filter(|(_, &m)| m == held)
+                .flat_map(|(r, _)| r.iter().copied())
+                .collect();
+            VectorSet::new(d, flat)
+        };
+        let training = pick(false)?;
+        let held = match holdout {
+            Some(_) => Some(pick(true)?),
+            None => None,
+        };
+        let unique = training.deduplicated();
+        Ok(RecordSource {
+            tables: tables.to_vec(),
+            variance: variance_per_component(&unique),
+            layout,
+            unique,
+            all,
+            per_table: frames,
+            held,
+            notices,
+        })
+    }
+
+    /// Components per vector.
+    pub fn dimension(&self) -> usize {
+        self.layout.dimension()
+    }
+
+    /// Vectors in all (training and held out).
+    pub fn vectors(&self) -> usize {
+        self.all.len()
+    }
+
+    /// Held-out vectors.
+    pub fn held_out(&self) -> usize {
+        self.held.as_ref().map_or(0, |h| h.len())
+    }
+
+    /// Distinct training vectors: the largest codebook worth training.
+    pub fn distinct(&self) -> usize {
+        self.unique.len()
+    }
+
+    /// Every value as a 32-bit float, the time column excluded.
+    pub fn raw_bytes(&self) -> u64 {
+        let rows: usize = self.tables.iter().map(|t| t.rows()).sum();
+        (rows * self.layout.columns.len() * 4) as u64
+    }
+
+    /// What `stage`'s codebook costs and loses.
+    pub(super) fn measure(&self, stage: &Stage) -> Result<CurvePoint> {
+        let d = self.dimension();
+        let codebook = Codebook {
+            dimension: d,
+            codewords: stage.codewords.clone(),
+            meaning: Meaning::Records(self.layout.clone()),
+            training: stage.facts.clone(),
+        };
+        let size = codebook.size();
+        let codebook_bytes = codebook_to_bytes(&codebook)?.len() as u64;
+        let encoder = Encoder::new(&codebook.codewords, d)?;
+        let labels = encoder.encode(&self.all)?;
+        let mut meter = RecordErrorMeter::new(&self.layout);
+        let mut stream_bytes = 0;
+        let mut offset = 0;
+        for (t, &n) in self.tables.iter().zip(&self.per_table) {
+            let idx = &labels[offset..offset + n];
+            offset += n;
+            let decoded = decode_vectors(&codebook.codewords, d, idx);
+            meter.add(
+                &t.values,
+                &undo_scaling(&decoded, d, &self.layout, t.rows())?,
+            );
+            let time = match time_axis(t) {
+                TimeInfo::Regular(axis) => Some(axis),
+                _ => None,
+            };
+            let header = StreamHeader::for_codebook(
+                &codebook,
+                n as u64,
+                Some(RecordInfo {
+                    rows: t.rows() as u64,
+                    time,
+                }),
+            )?;
+            stream_bytes += stream_file_len(&header)?;
+        }
+        let mse = stage.distortion / (self.unique.total_weight() * d as f64);
+        let holdout = match &self.held {
+            Some(h) => {
+                let idx = encoder.encode(h)?;
+                let sq: f64 = h
+                    .rows()
+                    .zip(&idx)
+                    .map(|(r, &i)| squared_error(r, codebook.codeword(i as usize)))
+                    .sum();
+                Some(HeldOut::new(sq / (h.len() * d) as f64, mse))
+            }
+            None => None,
+        };
+        let rate = Rate::new(
+            bits_for_size(size),
+            index_entropy_bits(&index_counts(&labels, size)),
+            codebook_bytes,
+            stream_bytes,
+            self.raw_bytes(),
+        );
+        Ok(CurvePoint {
+            size,
+            distortion: mse,
+            mse,
+            quality: Quality::Records {
+                snr_db: snr_db(self.variance, mse),
+                max_abs_error: meter.finish().overall.max_abs_error,
+            },
+            rate,
+            holdout,
+        })
+    }
+}
