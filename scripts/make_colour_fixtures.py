@@ -50,6 +50,7 @@ import sys
 import numpy as np
 import colour
 from colour.difference import delta_E_CIE2000
+from fixture_json import fmt_float
 
 REPO = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 OUT = os.path.join(REPO, "tests", "fixtures", "colour_science.json")
@@ -109,15 +110,6 @@ SHARMA_TABLE_1 = [
 ]
 
 
-def fmt_float(x):
-    x = float(x)
-    if not math.isfinite(x):
-        raise ValueError(f"non-finite value {x!r} cannot go into a fixture")
-    if x == 0.0:
-        return "0.0"
-    s = np.format_float_positional(x, unique=True, trim="0")
-    assert float(s) == x, (s, x)
-    return s
 
 
 def to_json(v, indent=0):

@@ -30,7 +30,6 @@ Curves:
 """
 
 import json
-import math
 import os
 import sys
 
@@ -41,20 +40,12 @@ from kneed import KneeLocator
 from sklearn.cluster import KMeans
 from sklearn.datasets import load_iris, load_wine
 from sklearn.preprocessing import StandardScaler
+from fixture_json import fmt_float as fmt
 
 REPO = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 OUT = os.path.join(REPO, "tests", "fixtures", "kneed_knees.json")
 
 
-def fmt(x):
-    x = float(x)
-    if not math.isfinite(x):
-        raise ValueError(f"non-finite value {x!r} cannot go into a fixture")
-    if x == 0.0:
-        return "0.0"
-    s = np.format_float_positional(x, unique=True, trim="0")
-    assert float(s) == x, (s, x)
-    return s
 
 
 def row(values):

@@ -33,7 +33,6 @@ Conventions:
 import argparse
 import hashlib
 import json
-import math
 import os
 import shutil
 import sys
@@ -49,6 +48,7 @@ from sklearn.cluster import KMeans
 from sklearn.datasets import load_wine
 from sklearn.preprocessing import StandardScaler
 from vega_datasets import local_data
+from fixture_json import fmt_float
 
 REPO = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 DATA_DIR = os.path.join(REPO, "tests", "data")
@@ -75,15 +75,6 @@ def f32(a):
     return np.asarray(a, dtype=np.float64).astype(np.float32).astype(np.float64)
 
 
-def fmt_float(x):
-    x = float(x)
-    if not math.isfinite(x):
-        raise ValueError(f"non-finite value {x!r} cannot go into a fixture")
-    if x == 0.0:
-        return "0.0"
-    s = np.format_float_positional(x, unique=True, trim="0")
-    assert float(s) == x, (s, x)
-    return s
 
 
 def _scalar(v):

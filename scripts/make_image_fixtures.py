@@ -61,6 +61,7 @@ import skimage  # noqa: E402
 import sklearn  # noqa: E402
 from PIL import Image  # noqa: E402
 from sklearn.cluster import KMeans  # noqa: E402
+from fixture_json import fmt_float
 
 with warnings.catch_warnings():
     # colour-science warns at import time that the optional plotting
@@ -103,15 +104,6 @@ WRITTEN = []
 # JSON helpers (same output conventions as scripts/make_fixtures.py)
 # --------------------------------------------------------------------------
 
-def fmt_float(x):
-    x = float(x)
-    if not math.isfinite(x):
-        raise ValueError(f"non-finite value {x!r} cannot go into a fixture")
-    if x == 0.0:
-        return "0.0"
-    s = np.format_float_positional(x, unique=True, trim="0")
-    assert float(s) == x, (s, x)
-    return s
 
 
 def _scalar(v):

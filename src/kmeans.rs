@@ -12,6 +12,8 @@ use serde::{Deserialize, Serialize};
 
 use crate::encode::{distance_sq, Encoder, NearestTwo, CHUNK_ROWS};
 use crate::error::{Error, ErrorKind, Result};
+// Squared distance in f64 from explicit differences: the reported figure.
+use crate::metrics::squared_error as exact_sq;
 use crate::rng::{derive_seed, SeededRng};
 use crate::vectors::VectorSet;
 
@@ -635,18 +637,6 @@ fn positive_weight(v: &VectorSet) -> Result<VectorSet> {
         return Err(Error::new("training", ErrorKind::EmptyInput));
     }
     VectorSet::new(v.dimension(), data)?.with_weights(weights)
-}
-
-/// Squared distance in f64 from explicit differences: the reported figure.
-#[inline]
-fn exact_sq(a: &[f32], b: &[f32]) -> f64 {
-    a.iter()
-        .zip(b)
-        .map(|(&x, &y)| {
-            let d = x as f64 - y as f64;
-            d * d
-        })
-        .sum()
 }
 
 /// k distinct vectors drawn without replacement with probability ∝ weight

@@ -113,6 +113,7 @@ pub fn psnr_db(peak: f64, mse: f64) -> Option<f64> {
 
 /// ‖a − b‖² in f64 from explicit differences (no |a|² − 2ab + |b|²
 /// shortcut): the figure reports give.
+#[inline]
 pub fn squared_error(a: &[f32], b: &[f32]) -> f64 {
     a.iter()
         .zip(b)
