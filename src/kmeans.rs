@@ -10,7 +10,7 @@
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
-use crate::encode::{distance_sq, Encoder, NearestTwo, CHUNK_ROWS};
+use crate::encode::{distance_sq, Encoder, Nearest, NearestTwo, CHUNK_ROWS};
 use crate::error::{Error, ErrorKind, Result};
 use crate::rng::{derive_seed, SeededRng};
 use crate::vectors::VectorSet;
@@ -796,9 +796,11 @@ fn assign(vectors: &VectorSet, codewords: &[f32], labels: &mut [u32]) -> Result<
         .enumerate()
         .map(|(c, (lab, rows))| {
             let mut p = Partial::empty(k, d);
+            let mut found = vec![Nearest::NONE; lab.len()];
+            encoder.nearest_batch(rows, &mut found);
             for (j, (l, r)) in lab.iter_mut().zip(rows.chunks_exact(d)).enumerate() {
                 let w = weights.map_or(1.0, |w| w[c * CHUNK_ROWS + j]);
-                let idx = encoder.nearest(r).index;
+                let idx = found[j].index;
                 if *l != idx {
                     p.changed += 1;
                     *l = idx;
@@ -1099,6 +1101,12 @@ impl BoundedAssign {
             .enumerate()
             .map(|(c, (((lab, up), low), rows))| {
                 let mut p = Partial::empty(k, d);
+                // Every vector is searched on the first pass: all at once.
+                let mut searched = Vec::new();
+                if first {
+                    searched.resize(lab.len(), NearestTwo::NONE);
+                    encoder.nearest_two_batch(rows, &mut searched);
+                }
                 for (j, r) in rows.chunks_exact(d).enumerate() {
                     let w = weights.map_or(1.0, |w| w[c * CHUNK_ROWS + j]);
                     let mut idx = lab[j];
@@ -1117,6 +1125,7 @@ impl BoundedAssign {
                     }
                     if !keep {
                         let (two, beyond) = match &near {
+                            _ if first => (searched[j], f64::INFINITY),
                             Some(near) => near.nearest_two(r, idx as usize, up[j], codewords, rel),
                             None => (encoder.nearest_two(r), f64::INFINITY),
                         };
