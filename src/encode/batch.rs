@@ -52,6 +52,8 @@
 //! Queries whose M² could overflow `f32` (or that are not finite) are
 //! measured exactly against every codeword.
 
+use multiversion::multiversion;
+
 use super::{distance_sq, nearest_linear, nearest_two_linear, Nearest, NearestTwo};
 
 /// Codewords per panel: the kernel's vector width.
@@ -160,6 +162,7 @@ impl Blocked {
     /// Nearest codeword of every row of `rows` (flat), into `out`.
     pub(super) fn nearest(&self, codewords: &[f32], rows: &[f32], out: &mut [Nearest]) {
         let d = self.dimension;
+        let mut found = Vec::new();
         self.each_row::<false, _>(rows, out, |scores, (least, _), x, length, slot| {
             *slot = match self.window(least, length) {
                 Some(top) => {
@@ -167,7 +170,8 @@ impl Blocked {
                         index: 0,
                         distance_sq: f32::INFINITY,
                     };
-                    for_each_at_most(scores, top, |i| {
+                    at_most(scores, top, &mut found);
+                    for &i in &found {
                         let e = distance_sq(&codewords[i * d..][..d], x);
                         if e < best.distance_sq {
                             best = Nearest {
@@ -175,7 +179,7 @@ impl Blocked {
                                 distance_sq: e,
                             };
                         }
-                    });
+                    }
                     best
                 }
                 None => nearest_linear(codewords, d, x),
@@ -186,14 +190,16 @@ impl Blocked {
     /// Nearest codeword and runner-up distance of every row, into `out`.
     pub(super) fn nearest_two(&self, codewords: &[f32], rows: &[f32], out: &mut [NearestTwo]) {
         let d = self.dimension;
+        let mut found = Vec::new();
         self.each_row::<true, _>(rows, out, |scores, (least, second), x, length, slot| {
             *slot = match self.window(least, length) {
                 Some(_) => {
                     let top = self.window(second, length).unwrap_or(f32::INFINITY);
                     let mut two = NearestTwo::NONE;
-                    for_each_at_most(scores, top, |i| {
+                    at_most(scores, top, &mut found);
+                    for &i in &found {
                         two.offer(i as u32, distance_sq(&codewords[i * d..][..d], x));
-                    });
+                    }
                     two
                 }
                 None => nearest_two_linear(codewords, d, x),
@@ -264,34 +270,73 @@ impl Blocked {
             }
             t.lengths[r] = length.sqrt();
         }
-        let padded = self.norms.len();
-        let mut lo = [[f32::INFINITY; LANES]; TILE_ROWS];
-        let mut hi = [[f32::INFINITY; LANES]; TILE_ROWS];
-        for (p, (panel, norms)) in self
-            .panels
-            .chunks_exact(d * LANES)
-            .zip(self.norms.chunks_exact(LANES))
-            .enumerate()
-        {
-            let norms: &[f32; LANES] = norms.try_into().expect("whole panels");
-            let acc = tile_scores(&t.moved, panel, norms);
-            for (r, a) in acc.iter().enumerate() {
-                t.scores[r * padded + p * LANES..][..LANES].copy_from_slice(a);
-                // Plain comparisons rather than f32::min: scores of finite
-                // queries are never NaN, and this form is one instruction.
-                for ((l, h), &v) in lo[r].iter_mut().zip(hi[r].iter_mut()).zip(a) {
-                    if TWO {
-                        let above = if v < *l { *l } else { v };
-                        *h = if above < *h { above } else { *h };
-                    }
-                    *l = if v < *l { v } else { *l };
-                }
-            }
-        }
+        let (lo, hi) = score_panels(&t.moved, &self.panels, &self.norms, TWO, &mut t.scores);
         for r in 0..n {
             t.least[r] = least_two(&lo[r], &hi[r]);
         }
     }
+}
+
+/// Per-lane least and second least scores of a tile's rows.
+type LaneLeast = [[f32; LANES]; TILE_ROWS];
+
+/// Scores one tile of moved queries (`moved`, component by component)
+/// against every panel into `scores` (row after row, each `norms.len()`
+/// long), and returns each row's per-lane least scores and, if `two`,
+/// second least (else +∞).
+///
+/// Compiled once for the baseline instruction set and once for AVX2, and
+/// the best the processor offers is chosen at run time (the `multiversion`
+/// crate), so the vectorised loops use 8-wide registers where they exist
+/// without any build flag; the arithmetic is the same in both, and the
+/// recheck makes the answers exact either way.
+#[multiversion(targets("x86_64+avx2+avx"))]
+fn score_panels(
+    moved: &[f32],
+    panels: &[f32],
+    norms: &[f32],
+    two: bool,
+    scores: &mut [f32],
+) -> (LaneLeast, LaneLeast) {
+    if two {
+        score_panels_with::<true>(moved, panels, norms, scores)
+    } else {
+        score_panels_with::<false>(moved, panels, norms, scores)
+    }
+}
+
+#[inline(always)]
+fn score_panels_with<const TWO: bool>(
+    moved: &[f32],
+    panels: &[f32],
+    norms: &[f32],
+    scores: &mut [f32],
+) -> (LaneLeast, LaneLeast) {
+    let d = moved.len() / TILE_ROWS;
+    let padded = norms.len();
+    let mut lo = [[f32::INFINITY; LANES]; TILE_ROWS];
+    let mut hi = [[f32::INFINITY; LANES]; TILE_ROWS];
+    for (p, (panel, norms)) in panels
+        .chunks_exact(d * LANES)
+        .zip(norms.chunks_exact(LANES))
+        .enumerate()
+    {
+        let norms: &[f32; LANES] = norms.try_into().expect("whole panels");
+        let acc = tile_scores(moved, panel, norms);
+        for (r, a) in acc.iter().enumerate() {
+            scores[r * padded + p * LANES..][..LANES].copy_from_slice(a);
+            // Plain comparisons rather than f32::min: scores of finite
+            // queries are never NaN, and this form is one instruction.
+            for ((l, h), &v) in lo[r].iter_mut().zip(hi[r].iter_mut()).zip(a) {
+                if TWO {
+                    let above = if v < *l { *l } else { v };
+                    *h = if above < *h { above } else { *h };
+                }
+                *l = if v < *l { v } else { *l };
+            }
+        }
+    }
+    (lo, hi)
 }
 
 /// Scores of one tile of queries against one panel of codewords: the
@@ -329,27 +374,24 @@ fn least_two(lo: &[f32; LANES], hi: &[f32; LANES]) -> (f32, f32) {
     (first, second)
 }
 
-/// Calls `f(i)` for every i with `scores[i] ≤ top`, in increasing order.
-#[inline]
-fn for_each_at_most(scores: &[f32], top: f32, mut f: impl FnMut(usize)) {
-    let mut chunks = scores.chunks_exact(LANES);
-    let mut base = 0;
-    for c in &mut chunks {
-        // Most chunks hold no candidate; test them all at once.
+/// Collects into `found` (cleared first) every i with `scores[i] ≤ top`,
+/// in increasing order. Kept apart from the exact measuring so this loop
+/// stays a few vector compares per chunk (compiled like [`score_panels`]).
+#[multiversion(targets("x86_64+avx2+avx"))]
+fn at_most(scores: &[f32], top: f32, found: &mut Vec<usize>) {
+    const CHUNK: usize = LANES;
+    found.clear();
+    let mut chunks = scores.chunks_exact(CHUNK);
+    for (n, c) in chunks.by_ref().enumerate() {
+        // Most chunks hold no candidate: one vector compare says so.
         if c.iter().fold(false, |any, &v| any | (v <= top)) {
-            for (l, &v) in c.iter().enumerate() {
-                if v <= top {
-                    f(base + l);
-                }
-            }
-        }
-        base += LANES;
-    }
-    for (l, &v) in chunks.remainder().iter().enumerate() {
-        if v <= top {
-            f(base + l);
+            let base = n * CHUNK;
+            found.extend((0..CHUNK).filter(|&l| c[l] <= top).map(|l| base + l));
         }
     }
+    let base = scores.len() - chunks.remainder().len();
+    let tail = chunks.remainder().iter().enumerate();
+    found.extend(tail.filter(|&(_, &v)| v <= top).map(|(l, _)| base + l));
 }
 
 /// The least `f32` at or above `v` (finite `v`).
