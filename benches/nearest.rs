@@ -1,6 +1,7 @@
-//! Nearest-codeword search, one query at a time on one thread: our k-d tree,
-//! our partial-distance scan, the linear oracle, and `kiddo`'s immutable
-//! k-d tree as an outside reference.
+//! Nearest-codeword search on one thread: our k-d tree and our scan one
+//! query at a time, the blocked batch kernel (`Encoder::nearest_batch` with
+//! the scan method) on all queries at once, the linear oracle, and `kiddo`'s
+//! immutable k-d tree as an outside reference.
 //!
 //! Before anything is timed, every method's answer for every query is
 //! checked against `nearest_linear`, and the mismatches and the mean squared
@@ -17,7 +18,7 @@ use std::time::Duration;
 
 use criterion::{criterion_group, criterion_main, Criterion, SamplingMode, Throughput};
 use kiddo::{ImmutableKdTree, SquaredEuclidean};
-use vqforge::encode::{distance_sq, nearest_linear, Encoder, SearchMethod};
+use vqforge::encode::{distance_sq, nearest_linear, Encoder, Nearest, SearchMethod};
 use vqforge::rng::SeededRng;
 
 const CODEWORDS: usize = 256;
@@ -101,6 +102,14 @@ fn bench_dimension<const D: usize>(c: &mut Criterion) {
         report(name, D, &a);
         assert_eq!(a.differ, 0, "{name} must match the linear oracle exactly");
     }
+    let mut found = vec![Nearest::NONE; QUERIES];
+    scan.nearest_batch(&queries, &mut found);
+    let mut next = found.iter();
+    let a = agreement(&codewords, D, &queries, &want, |_| {
+        next.next().expect("one answer per query").index
+    });
+    report("batch", D, &a);
+    assert_eq!(a.differ, 0, "batch must match the linear oracle exactly");
     let mut next = query_arrays.iter();
     let a = agreement(&codewords, D, &queries, &want, |_| {
         let q = next.next().expect("one array per query");
@@ -123,6 +132,12 @@ fn bench_dimension<const D: usize>(c: &mut Criterion) {
             })
         });
     }
+    group.bench_function("batch", |b| {
+        b.iter(|| {
+            scan.nearest_batch(black_box(&queries), &mut found);
+            found.iter().map(|f| u64::from(f.index)).sum::<u64>()
+        })
+    });
     group.bench_function("kiddo", |b| {
         b.iter(|| {
             let mut sum = 0u64;
@@ -145,7 +160,11 @@ fn bench_dimension<const D: usize>(c: &mut Criterion) {
 }
 
 fn nearest(c: &mut Criterion) {
+    // 3 to 8: where the tree and the batch kernel compete for `Auto`.
     bench_dimension::<3>(c);
+    bench_dimension::<4>(c);
+    bench_dimension::<5>(c);
+    bench_dimension::<8>(c);
     bench_dimension::<16>(c);
 }
 

@@ -10,7 +10,7 @@
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
-use crate::encode::{distance_sq, Encoder, NearestTwo, CHUNK_ROWS};
+use crate::encode::{distance_sq, Encoder, Nearest, NearestTwo, CHUNK_ROWS};
 use crate::error::{Error, ErrorKind, Result};
 // Squared distance in f64 from explicit differences: the reported figure.
 use crate::metrics::squared_error as exact_sq;
@@ -786,9 +786,11 @@ fn assign(vectors: &VectorSet, codewords: &[f32], labels: &mut [u32]) -> Result<
         .enumerate()
         .map(|(c, (lab, rows))| {
             let mut p = Partial::empty(k, d);
+            let mut found = vec![Nearest::NONE; lab.len()];
+            encoder.nearest_batch(rows, &mut found);
             for (j, (l, r)) in lab.iter_mut().zip(rows.chunks_exact(d)).enumerate() {
                 let w = weights.map_or(1.0, |w| w[c * CHUNK_ROWS + j]);
-                let idx = encoder.nearest(r).index;
+                let idx = found[j].index;
                 if *l != idx {
                     p.changed += 1;
                     *l = idx;
@@ -977,6 +979,13 @@ impl Neighbours {
         &self.rows[a * (self.k - 1)..(a + 1) * (self.k - 1)]
     }
 
+    /// How many codewords [`Neighbours::nearest_two`] would measure for a
+    /// vector at distance `u` from codeword `a`.
+    fn within(&self, a: usize, u: f64, rel: f64) -> usize {
+        let reach = 2.0 * u * (1.0 + rel) + BOUND_FLOOR;
+        1 + self.row(a).partition_point(|&(gap, _)| gap <= reach)
+    }
+
     /// Half the distance from codeword a to the nearest other one.
     fn half_gap(&self, a: usize) -> f64 {
         self.row(a).first().map_or(f64::INFINITY, |&(g, _)| 0.5 * g)
@@ -1011,6 +1020,13 @@ impl Neighbours {
         (two, beyond)
     }
 }
+
+/// How many codewords the batch kernel measures in the time one search of
+/// a neighbour list measures one (a low estimate from benches/nearest.rs:
+/// the kernel answers a whole-codebook query 3–6× faster than the plain
+/// scan, and a neighbour search costs more per codeword than the scan).
+/// Searches of longer lists go to the batch; the answers are the same.
+const BATCH_GAIN: usize = 4;
 
 /// Absolute slack for distances so small that `f32` squares underflow.
 const BOUND_FLOOR: f64 = 1e-15;
@@ -1067,11 +1083,7 @@ impl BoundedAssign {
             };
             (moved, near, half_gap)
         };
-        // The tree or scan is only needed without neighbour lists.
-        let encoder = match near {
-            Some(_) => None,
-            None => Some(Encoder::new(codewords, d)?),
-        };
+        let encoder = Encoder::new(codewords, d)?;
         // The largest move and the largest move of any other codeword.
         let (mut top, mut top_at, mut runner) = (0.0f64, usize::MAX, 0.0f64);
         for (j, &m) in moved.iter().enumerate() {
@@ -1093,30 +1105,57 @@ impl BoundedAssign {
             .enumerate()
             .map(|(c, (((lab, up), low), rows))| {
                 let mut p = Partial::empty(k, d);
+                // Per vector: what its search found, if it needed one.
+                let mut found: Vec<Option<(NearestTwo, f64)>> = vec![None; lab.len()];
+                // Vectors left to one batch search of the chunk: all on the
+                // first pass; later, those whose neighbour list within reach
+                // is too long for a single search to beat the batch kernel.
+                let mut pending: Vec<usize> = Vec::new();
+                for (j, r) in rows.chunks_exact(d).enumerate() {
+                    if first {
+                        pending.push(j);
+                        continue;
+                    }
+                    let a = lab[j] as usize;
+                    up[j] += moved[a];
+                    low[j] -= if a == top_at { runner } else { top };
+                    let bound = low[j].max(half_gap[a]) * (1.0 - rel);
+                    if up[j] * (1.0 + rel) + BOUND_FLOOR < bound {
+                        continue;
+                    }
+                    up[j] = exact_sq(r, &codewords[a * d..(a + 1) * d]).sqrt();
+                    if up[j] * (1.0 + rel) + BOUND_FLOOR < bound {
+                        continue;
+                    }
+                    match &near {
+                        Some(near) if near.within(a, up[j], rel) * BATCH_GAIN < k => {
+                            found[j] = Some(near.nearest_two(r, a, up[j], codewords, rel));
+                        }
+                        _ => pending.push(j),
+                    }
+                }
+                if !pending.is_empty() {
+                    let gathered: Vec<f32>;
+                    let queries = if pending.len() == lab.len() {
+                        rows
+                    } else {
+                        gathered = pending
+                            .iter()
+                            .flat_map(|&j| &rows[j * d..(j + 1) * d])
+                            .copied()
+                            .collect();
+                        &gathered
+                    };
+                    let mut two = vec![NearestTwo::NONE; pending.len()];
+                    encoder.nearest_two_batch(queries, &mut two);
+                    for (&j, t) in pending.iter().zip(two) {
+                        found[j] = Some((t, f64::INFINITY));
+                    }
+                }
                 for (j, r) in rows.chunks_exact(d).enumerate() {
                     let w = weights.map_or(1.0, |w| w[c * CHUNK_ROWS + j]);
                     let mut idx = lab[j];
-                    let mut keep = false;
-                    if !first {
-                        let a = idx as usize;
-                        up[j] += moved[a];
-                        low[j] -= if a == top_at { runner } else { top };
-                        let bound = low[j].max(half_gap[a]) * (1.0 - rel);
-                        if up[j] * (1.0 + rel) + BOUND_FLOOR < bound {
-                            keep = true;
-                        } else {
-                            up[j] = exact_sq(r, &codewords[a * d..(a + 1) * d]).sqrt();
-                            keep = up[j] * (1.0 + rel) + BOUND_FLOOR < bound;
-                        }
-                    }
-                    if !keep {
-                        let (two, beyond) = match &near {
-                            Some(near) => near.nearest_two(r, idx as usize, up[j], codewords, rel),
-                            None => (
-                                encoder.as_ref().expect("built above").nearest_two(r),
-                                f64::INFINITY,
-                            ),
-                        };
+                    if let Some((two, beyond)) = found[j] {
                         idx = two.nearest.index;
                         let i = idx as usize;
                         up[j] = exact_sq(r, &codewords[i * d..(i + 1) * d]).sqrt();
