@@ -8,10 +8,7 @@ use std::process::Command;
 use tempfile::TempDir;
 
 mod common;
-use common::{data, fails};
-
-const USAGE: i32 = 2;
-const FAILURE: i32 = 1;
+use common::{data, fails, FAILURE, USAGE};
 
 /// A fresh folder holding copies of the sample tables.
 fn sandbox() -> TempDir {

@@ -4,17 +4,11 @@
 //! against neighbouring sizes and against `palette`, the SVG and CSV
 //! outputs, and a catalogue of bad input.
 
-use std::path::Path;
-use std::process::{Command, Output};
-
 use serde_json::Value;
 use tempfile::TempDir;
 
 mod common;
-use common::{assert_close, data, fails, int, num};
-
-const USAGE: i32 = 2;
-const FAILURE: i32 = 1;
+use common::{assert_close, data, fails, int, json, json_env, num, ok_env, FAILURE, USAGE};
 
 /// A fresh folder holding `wine.csv` and `c.png` (chelsea).
 fn sandbox() -> TempDir {
@@ -22,37 +16,6 @@ fn sandbox() -> TempDir {
     std::fs::copy(data("wine.csv"), dir.path().join("wine.csv")).unwrap();
     std::fs::copy(data("images/chelsea.png"), dir.path().join("c.png")).unwrap();
     dir
-}
-
-fn run_env(dir: &Path, args: &[&str], env: &[(&str, &str)]) -> Output {
-    let mut cmd = Command::new(env!("CARGO_BIN_EXE_vqforge"));
-    cmd.current_dir(dir).args(args);
-    for (k, v) in env {
-        cmd.env(k, v);
-    }
-    let out = cmd.output().expect("the vqforge binary runs");
-    assert!(
-        out.status.success(),
-        "vqforge {args:?} failed ({:?}): {}",
-        out.status,
-        String::from_utf8_lossy(&out.stderr)
-    );
-    assert!(!String::from_utf8_lossy(&out.stderr).contains("panicked"));
-    out
-}
-
-fn json_env(dir: &Path, args: &[&str], env: &[(&str, &str)]) -> Value {
-    let out = run_env(dir, args, env);
-    serde_json::from_slice(&out.stdout).unwrap_or_else(|e| {
-        panic!(
-            "vqforge {args:?} printed no JSON object ({e}): {}",
-            String::from_utf8_lossy(&out.stdout)
-        )
-    })
-}
-
-fn json(dir: &Path, args: &[&str]) -> Value {
-    json_env(dir, args, &[])
 }
 
 fn points(v: &Value) -> &Vec<Value> {
@@ -131,7 +94,7 @@ fn record_report_keys_monotone_mse_and_rate_against_train_and_encode() {
     for k in ["3", "8"] {
         let book = format!("w{k}.vqb");
         let stream = format!("w{k}.vqs");
-        run_env(d, &["train", "wine.csv", "-k", k, "-o", &book], &[]);
+        ok_env(d, &["train", "wine.csv", "-k", k, "-o", &book], &[]);
         let e = json(
             d,
             &["encode", "wine.csv", "-b", &book, "-o", &stream, "--json"],
@@ -412,7 +375,7 @@ fn same_seed_same_report_for_any_thread_count() {
 #[test]
 fn sizes_above_the_distinct_vectors_are_clipped_with_a_notice() {
     let dir = sandbox();
-    let out = run_env(
+    let out = ok_env(
         dir.path(),
         &["curve", "wine.csv", "--sizes", "100,150,400", "--json"],
         &[],

@@ -10,51 +10,15 @@
 use std::collections::HashSet;
 use std::io::Cursor;
 use std::path::Path;
-use std::process::{Command, Output};
+use std::process::Command;
 
 use serde_json::Value;
 
 mod common;
-use common::{assert_close, data, fails, int, num};
+use common::{assert_close, data, fails, int, json, num, ok, FAILURE, USAGE};
 use tempfile::TempDir;
 
 use vqforge::colour::DisplayFormat;
-
-const USAGE: i32 = 2;
-const FAILURE: i32 = 1;
-
-/// Runs the binary in `dir`.
-fn run(dir: &Path, args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_vqforge"))
-        .current_dir(dir)
-        .args(args)
-        .output()
-        .expect("the vqforge binary runs")
-}
-
-/// Runs the binary in `dir`, insists on success and returns the output.
-fn ok(dir: &Path, args: &[&str]) -> Output {
-    let out = run(dir, args);
-    let stderr = String::from_utf8_lossy(&out.stderr);
-    assert!(
-        out.status.success(),
-        "vqforge {args:?} failed ({:?}): {stderr}",
-        out.status
-    );
-    assert!(!stderr.contains("panicked"), "{stderr}");
-    out
-}
-
-/// Runs a `--json` command and parses the one object it prints.
-fn json(dir: &Path, args: &[&str]) -> Value {
-    let out = ok(dir, args);
-    serde_json::from_slice(&out.stdout).unwrap_or_else(|e| {
-        panic!(
-            "vqforge {args:?} printed no JSON object ({e}): {}",
-            String::from_utf8_lossy(&out.stdout)
-        )
-    })
-}
 
 /// `#rrggbb` → RGB.
 fn parse_hex(s: &str) -> [u8; 3] {

@@ -7,12 +7,11 @@
 
 use std::collections::{BTreeMap, BTreeSet};
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
 
 use serde_json::Value;
 
 mod common;
-use common::{assert_close, data, int, num};
+use common::{assert_close, data, int, json, num, ok, ok_env};
 
 const WINE_COLUMNS: [&str; 13] = [
     "alcohol",
@@ -36,45 +35,6 @@ fn fixture(name: &str) -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR"))
         .join("tests/fixtures")
         .join(name)
-}
-
-/// Runs the binary in `dir` with extra environment variables.
-fn run_env(dir: &Path, args: &[&str], env: &[(&str, &str)]) -> Output {
-    let mut cmd = Command::new(env!("CARGO_BIN_EXE_vqforge"));
-    cmd.current_dir(dir).args(args);
-    for (k, v) in env {
-        cmd.env(k, v);
-    }
-    cmd.output().expect("the vqforge binary runs")
-}
-
-/// Runs the binary in `dir`, insists on success and returns the output.
-fn ok(dir: &Path, args: &[&str]) -> Output {
-    ok_env(dir, args, &[])
-}
-
-fn ok_env(dir: &Path, args: &[&str], env: &[(&str, &str)]) -> Output {
-    let out = run_env(dir, args, env);
-    assert!(
-        out.status.success(),
-        "vqforge {args:?} failed ({:?}): {}",
-        out.status,
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let stderr = String::from_utf8_lossy(&out.stderr);
-    assert!(!stderr.contains("panicked"), "{stderr}");
-    out
-}
-
-/// Runs a `--json` command and parses the one object it prints.
-fn json(dir: &Path, args: &[&str]) -> Value {
-    let out = ok(dir, args);
-    serde_json::from_slice(&out.stdout).unwrap_or_else(|e| {
-        panic!(
-            "vqforge {args:?} printed no JSON object ({e}): {}",
-            String::from_utf8_lossy(&out.stdout)
-        )
-    })
 }
 
 /// The keys every train report must have, with their JSON types.

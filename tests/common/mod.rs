@@ -1,17 +1,67 @@
-//! Helpers shared by the integration tests: reading numbers out of a
-//! `--json` report and comparing them, checking a failing run of the
-//! binary, and stratified samples of a source.
+//! Helpers shared by the integration tests: running the binary and reading
+//! numbers out of its `--json` report, checking a failing run, and
+//! stratified samples of a source.
 
 // Each test file uses some of these helpers, none uses all.
 #![allow(dead_code)]
 
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
-use std::process::Command;
+use std::process::{Command, Output};
 
 use serde_json::Value;
 use tempfile::TempDir;
 use vqforge::rng::SeededRng;
+
+/// Exit code of a usage error.
+pub const USAGE: i32 = 2;
+/// Exit code of any other failure.
+pub const FAILURE: i32 = 1;
+
+/// Runs the binary in `dir` with extra environment variables.
+pub fn run_env(dir: &Path, args: &[&str], env: &[(&str, &str)]) -> Output {
+    let mut cmd = Command::new(env!("CARGO_BIN_EXE_vqforge"));
+    cmd.current_dir(dir).args(args);
+    for (k, v) in env {
+        cmd.env(k, v);
+    }
+    cmd.output().expect("the vqforge binary runs")
+}
+
+/// [`run_env`] that insists on success without a panic.
+pub fn ok_env(dir: &Path, args: &[&str], env: &[(&str, &str)]) -> Output {
+    let out = run_env(dir, args, env);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        out.status.success(),
+        "vqforge {args:?} failed ({:?}): {stderr}",
+        out.status
+    );
+    assert!(!stderr.contains("panicked"), "{stderr}");
+    out
+}
+
+/// Runs the binary in `dir`, insists on success and returns the output.
+pub fn ok(dir: &Path, args: &[&str]) -> Output {
+    ok_env(dir, args, &[])
+}
+
+/// Runs a `--json` command with extra environment variables and parses the
+/// one object it prints.
+pub fn json_env(dir: &Path, args: &[&str], env: &[(&str, &str)]) -> Value {
+    let out = ok_env(dir, args, env);
+    serde_json::from_slice(&out.stdout).unwrap_or_else(|e| {
+        panic!(
+            "vqforge {args:?} printed no JSON object ({e}): {}",
+            String::from_utf8_lossy(&out.stdout)
+        )
+    })
+}
+
+/// Runs a `--json` command and parses the one object it prints.
+pub fn json(dir: &Path, args: &[&str]) -> Value {
+    json_env(dir, args, &[])
+}
 
 /// A committed data file under `tests/data/`.
 pub fn data(name: &str) -> PathBuf {
