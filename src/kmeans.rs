@@ -464,12 +464,11 @@ pub fn train_constrained(
     };
     // Many distinct low-dimensional vectors (photos): restarts run on grid
     // cell means, and only the best is refined on every distinct vector.
-    let work = unique.len().saturating_mul(cfg.size).saturating_mul(dim);
     let coarse = (cfg.coarse_start == CoarseStart::Auto
         && dim <= COARSE_MAX_DIMENSION
         && unique.len() > COARSE_CELLS
-        && work > MOVE_REFINE_BUDGET)
-        .then(|| unique.coarsened(COARSE_CELLS));
+        && !moves_affordable(&unique, cfg.size))
+    .then(|| unique.coarsened(COARSE_CELLS));
     let stage = coarse.as_ref().unwrap_or(&unique);
     let free = constraint.without_snap();
     // Restarts are independent (each has its own derived seed), so they run
@@ -491,18 +490,18 @@ pub fn train_constrained(
                 })
             };
             let result = match cfg.seeding {
-                Seeding::KMeansPlusPlus => {
-                    let init =
-                        seed_kmeans_plus_plus_around(stage, cfg.size, &mut rng, constraint.fixed);
-                    lloyd_core(stage, &init, &opts, free, &on_iter)?
-                }
-                Seeding::Random => {
-                    let mut init = constraint.fixed.to_vec();
-                    init.extend(seed_random(stage, cfg.size - fixed, &mut rng));
-                    lloyd_core(stage, &init, &opts, free, &on_iter)?
-                }
                 Seeding::Split => {
                     split_and_refine(stage, cfg.size, &opts, &mut rng, free, &on_iter)?
+                }
+                Seeding::KMeansPlusPlus | Seeding::Random => {
+                    let init = if cfg.seeding == Seeding::Random {
+                        let mut init = constraint.fixed.to_vec();
+                        init.extend(seed_random(stage, cfg.size - fixed, &mut rng));
+                        init
+                    } else {
+                        seed_kmeans_plus_plus_around(stage, cfg.size, &mut rng, constraint.fixed)
+                    };
+                    lloyd_core(stage, &init, &opts, free, &on_iter)?
                 }
             };
             if coarse.is_some() {
@@ -577,6 +576,16 @@ pub fn train_constrained(
     })
 }
 
+/// Whether single-vector moves over `vectors` with `k` codewords fit in
+/// [`MOVE_REFINE_BUDGET`] (n·k·d).
+fn moves_affordable(vectors: &VectorSet, k: usize) -> bool {
+    vectors
+        .len()
+        .saturating_mul(k)
+        .saturating_mul(vectors.dimension())
+        <= MOVE_REFINE_BUDGET
+}
+
 /// The end of every run: single-vector moves when the work is affordable
 /// (they end with a Lloyd pass under the constraint), otherwise Lloyd under
 /// the constraint's projection, if it has one.
@@ -587,12 +596,7 @@ fn polish(
     constraint: Constraint<'_>,
     on_iter: &(dyn Fn(u32, f64) + Sync),
 ) -> Result<LloydResult> {
-    let k = result.codewords.len() / vectors.dimension();
-    let work = vectors
-        .len()
-        .saturating_mul(k)
-        .saturating_mul(vectors.dimension());
-    if work <= MOVE_REFINE_BUDGET {
+    if moves_affordable(vectors, result.codewords.len() / vectors.dimension()) {
         refine_by_moves_core(vectors, &result, opts, MOVE_PASSES, constraint)
     } else if constraint.snap.is_some() {
         let mut snapped = lloyd_core(vectors, &result.codewords, opts, constraint, on_iter)?;
@@ -846,14 +850,14 @@ fn reduce(partials: Vec<Partial>, k: usize, d: usize) -> Partial {
 /// vector with the largest weighted squared error against the updated
 /// codewords, taken only from clusters that keep at least one other member,
 /// ties to the lowest vector index; a vector whose allowed point is already
-/// a codeword is passed over for the next. Returns how many were repaired.
+/// a codeword is passed over for the next.
 fn update(
     vectors: &VectorSet,
     codewords: &mut [f32],
     labels: &[u32],
     p: &Partial,
     constraint: Constraint<'_>,
-) -> usize {
+) {
     let d = vectors.dimension();
     let k = codewords.len() / d;
     let fixed = constraint.fixed_count(d);
@@ -874,7 +878,7 @@ fn update(
         }
     }
     if empty.is_empty() {
-        return 0;
+        return;
     }
     let mut members = vec![0usize; k];
     for &l in labels {
@@ -894,7 +898,6 @@ fn update(
     let mut order: Vec<usize> = (0..vectors.len()).filter(|&i| err[i] > 0.0).collect();
     order.sort_by(|&a, &b| err[b].total_cmp(&err[a]).then(a.cmp(&b)));
     let mut candidates = order.into_iter();
-    let mut repaired = 0;
     for e in empty {
         let placed = candidates.by_ref().find_map(|i| {
             if members[labels[i] as usize] <= 1 {
@@ -908,9 +911,7 @@ fn update(
         let Some((i, target)) = placed else { break };
         codewords[e * d..(e + 1) * d].copy_from_slice(&target);
         members[labels[i] as usize] -= 1;
-        repaired += 1;
     }
-    repaired
 }
 
 /// Assignment passes that remember, for every vector, an upper bound on the
@@ -932,12 +933,32 @@ struct BoundedAssign {
     lower: Vec<f64>,
     /// The codewords of the previous pass (empty before the first).
     last: Vec<f32>,
-    /// Search every vector every pass (the oracle in tests).
-    always_search: bool,
 }
 
 /// The most codewords for which passes keep [`Neighbours`] (k² entries).
 const NEIGHBOUR_LISTS_UP_TO: usize = 1024;
+
+/// Takes a search's answer for vector `r`: its label, the exact distance to
+/// that codeword as the upper bound, and as the lower bound the runner-up's
+/// distance or `beyond` (a bound on the codewords not examined), whichever
+/// is less. Returns whether the label changed.
+fn settle(
+    r: &[f32],
+    codewords: &[f32],
+    two: NearestTwo,
+    beyond: f64,
+    label: &mut u32,
+    upper: &mut f64,
+    lower: &mut f64,
+) -> bool {
+    let d = r.len();
+    let i = two.nearest.index as usize;
+    *upper = exact_sq(r, &codewords[i * d..(i + 1) * d]).sqrt();
+    *lower = (two.second_distance_sq as f64).sqrt().min(beyond);
+    let changed = *label != two.nearest.index;
+    *label = two.nearest.index;
+    changed
+}
 
 /// For every codeword, the others by increasing distance from it: a
 /// vector at distance u from codeword a can only be nearer to codewords
@@ -1037,7 +1058,6 @@ impl BoundedAssign {
             upper: vec![f64::INFINITY; n],
             lower: vec![0.0; n],
             last: Vec::new(),
-            always_search: false,
         }
     }
 
@@ -1052,7 +1072,7 @@ impl BoundedAssign {
         // Relative error of an f32 squared distance over d components,
         // with a wide margin; applied to distances it is wider still.
         let rel = 4.0 * (d as f64 + 2.0) * f32::EPSILON as f64;
-        let first = self.last.len() != codewords.len() || self.always_search;
+        let first = self.last.len() != codewords.len();
         let (moved, near, half_gap) = if first {
             (vec![0.0; k], None, Vec::new())
         } else {
@@ -1105,33 +1125,33 @@ impl BoundedAssign {
             .enumerate()
             .map(|(c, (((lab, up), low), rows))| {
                 let mut p = Partial::empty(k, d);
-                // Per vector: what its search found, if it needed one.
-                let mut found: Vec<Option<(NearestTwo, f64)>> = vec![None; lab.len()];
                 // Vectors left to one batch search of the chunk: all on the
                 // first pass; later, those whose neighbour list within reach
                 // is too long for a single search to beat the batch kernel.
                 let mut pending: Vec<usize> = Vec::new();
-                for (j, r) in rows.chunks_exact(d).enumerate() {
-                    if first {
-                        pending.push(j);
-                        continue;
-                    }
-                    let a = lab[j] as usize;
-                    up[j] += moved[a];
-                    low[j] -= if a == top_at { runner } else { top };
-                    let bound = low[j].max(half_gap[a]) * (1.0 - rel);
-                    if up[j] * (1.0 + rel) + BOUND_FLOOR < bound {
-                        continue;
-                    }
-                    up[j] = exact_sq(r, &codewords[a * d..(a + 1) * d]).sqrt();
-                    if up[j] * (1.0 + rel) + BOUND_FLOOR < bound {
-                        continue;
-                    }
-                    match &near {
-                        Some(near) if near.within(a, up[j], rel) * BATCH_GAIN < k => {
-                            found[j] = Some(near.nearest_two(r, a, up[j], codewords, rel));
+                if first {
+                    pending.extend(0..lab.len());
+                } else {
+                    for (j, r) in rows.chunks_exact(d).enumerate() {
+                        let a = lab[j] as usize;
+                        up[j] += moved[a];
+                        low[j] -= if a == top_at { runner } else { top };
+                        let bound = low[j].max(half_gap[a]) * (1.0 - rel);
+                        if up[j] * (1.0 + rel) + BOUND_FLOOR < bound {
+                            continue;
                         }
-                        _ => pending.push(j),
+                        up[j] = exact_sq(r, &codewords[a * d..(a + 1) * d]).sqrt();
+                        if up[j] * (1.0 + rel) + BOUND_FLOOR < bound {
+                            continue;
+                        }
+                        match &near {
+                            Some(near) if near.within(a, up[j], rel) * BATCH_GAIN < k => {
+                                let (two, beyond) = near.nearest_two(r, a, up[j], codewords, rel);
+                                let (l, u, lo) = (&mut lab[j], &mut up[j], &mut low[j]);
+                                p.changed += u64::from(settle(r, codewords, two, beyond, l, u, lo));
+                            }
+                            _ => pending.push(j),
+                        }
                     }
                 }
                 if !pending.is_empty() {
@@ -1149,23 +1169,15 @@ impl BoundedAssign {
                     let mut two = vec![NearestTwo::NONE; pending.len()];
                     encoder.nearest_two_batch(queries, &mut two);
                     for (&j, t) in pending.iter().zip(two) {
-                        found[j] = Some((t, f64::INFINITY));
+                        let r = &rows[j * d..(j + 1) * d];
+                        let (l, u, lo) = (&mut lab[j], &mut up[j], &mut low[j]);
+                        p.changed += u64::from(settle(r, codewords, t, f64::INFINITY, l, u, lo));
                     }
                 }
+                // Sums in row order, whatever was searched how.
                 for (j, r) in rows.chunks_exact(d).enumerate() {
                     let w = weights.map_or(1.0, |w| w[c * CHUNK_ROWS + j]);
-                    let mut idx = lab[j];
-                    if let Some((two, beyond)) = found[j] {
-                        idx = two.nearest.index;
-                        let i = idx as usize;
-                        up[j] = exact_sq(r, &codewords[i * d..(i + 1) * d]).sqrt();
-                        low[j] = (two.second_distance_sq as f64).sqrt().min(beyond);
-                        if lab[j] != idx {
-                            p.changed += 1;
-                            lab[j] = idx;
-                        }
-                    }
-                    p.add(r, w, idx as usize, codewords);
+                    p.add(r, w, lab[j] as usize, codewords);
                 }
                 p
             })
@@ -1263,9 +1275,15 @@ fn lloyd_with(
     let stopped_by;
     let mut prev: Option<f64> = None;
     let mut assigner = BoundedAssign::new(vectors.len());
-    assigner.always_search = passes != Passes::Bounded;
+    let mut pass = |codewords: &[f32], labels: &mut [u32]| {
+        if passes != Passes::Bounded {
+            // Without the previous codewords, every vector is searched.
+            assigner.last.clear();
+        }
+        assigner.pass(vectors, codewords, labels)
+    };
     loop {
-        let p = assigner.pass(vectors, &codewords, &mut labels)?;
+        let p = pass(&codewords, &mut labels)?;
         iterations += 1;
         history.push(p.distortion);
         on_iter(iterations, p.distortion);
@@ -1290,7 +1308,7 @@ fn lloyd_with(
         *history.last().expect("one pass ran")
     } else {
         // Codewords moved after the last assignment: assign once more.
-        assigner.pass(vectors, &codewords, &mut labels)?.distortion
+        pass(&codewords, &mut labels)?.distortion
     };
     Ok(LloydResult {
         codewords,
@@ -1400,7 +1418,18 @@ fn refine_by_moves_with(
             })
             .sum()
     };
-    let norm = |v: &[f64]| v.iter().map(|x| x * x).sum::<f64>().sqrt();
+    // Euclidean distance between two centres (or a centre and its old place).
+    let gap = |u: &[f64], v: &[f64]| -> f64 {
+        u.iter()
+            .zip(v)
+            .map(|(a, b)| {
+                let e = a - b;
+                e * e
+            })
+            .sum::<f64>()
+            .sqrt()
+    };
+    let mut old = vec![0.0f64; d];
     for _ in 0..max_passes {
         let mut moved = 0u64;
         // Candidates come nearest first from a table of the centres as
@@ -1409,10 +1438,7 @@ fn refine_by_moves_with(
         // W·w/(W+w)·‖x−c‖², at least `least_factor`·‖x−c‖², so once even
         // the nearest remaining centre cannot beat the best move, none can.
         let near = Neighbours::by(k, |a, b| {
-            let diff: Vec<f64> = (0..d)
-                .map(|c| centre[a * d + c] - centre[b * d + c])
-                .collect();
-            norm(&diff)
+            gap(&centre[a * d..(a + 1) * d], &centre[b * d..(b + 1) * d])
         });
         let mut drift = vec![0.0f64; k];
         let mut max_drift = 0.0f64;
@@ -1475,10 +1501,9 @@ fn refine_by_moves_with(
                 }
                 for j in [a, b] {
                     if j >= fixed {
-                        let old: Vec<f64> = centre[j * d..(j + 1) * d].to_vec();
+                        old.copy_from_slice(&centre[j * d..(j + 1) * d]);
                         set_centre(&mut centre, &sums, &weight, j);
-                        let step: Vec<f64> = (0..d).map(|c| centre[j * d + c] - old[c]).collect();
-                        drift[j] += norm(&step) * (1.0 + 1e-9);
+                        drift[j] += gap(&centre[j * d..(j + 1) * d], &old) * (1.0 + 1e-9);
                         max_drift = max_drift.max(drift[j]);
                     }
                 }
@@ -1624,7 +1649,6 @@ mod tests {
     #[test]
     fn bounded_passes_equal_searching_every_vector() {
         let mut rng = SeededRng::new(21);
-        let half = |v: &mut [f32]| v.iter_mut().for_each(|x| *x = (*x * 2.0).round() / 2.0);
         for &(d, n, k, grid) in &[
             (1, 3000, 9, false),
             (2, 4000, 40, true),
@@ -1651,7 +1675,7 @@ mod tests {
                 max_iterations: 60,
                 tolerance: 0.0,
             };
-            for snap in [None, Some(&half as SnapFn<'_>)] {
+            for snap in [None, Some(&half_grid as SnapFn<'_>)] {
                 let c = Constraint { fixed: &[], snap };
                 let run = |p| lloyd_with(&v, &init, &opts, c, &|_, _| {}, p).unwrap();
                 let (bounded, oracle) = (run(Passes::Bounded), run(Passes::SearchAll));

@@ -151,12 +151,10 @@ impl VectorSet {
         // (first index, summed weight) per run of equal rows; the weights
         // are summed in index order, as a pass in appearance order would.
         let mut firsts: Vec<(u32, f64)> = Vec::new();
-        for (i, &row) in order.iter().enumerate() {
+        for &row in &order {
             let w = self.weight(row as usize);
             match firsts.last_mut() {
-                Some((first, sum)) if i > 0 && self.row_bits(*first).eq(self.row_bits(row)) => {
-                    *sum += w
-                }
+                Some((first, sum)) if self.row_bits(*first).eq(self.row_bits(row)) => *sum += w,
                 _ => firsts.push((row, w)),
             }
         }
@@ -184,7 +182,9 @@ impl VectorSet {
     pub fn coarsened(&self, max_cells: usize) -> VectorSet {
         let d = self.dimension;
         let n = self.len();
-        if n <= max_cells.max(1) || d > 8 {
+        // At least one cell: every row fits in one cell of the widest width.
+        let max_cells = max_cells.max(1);
+        if n <= max_cells || d > 8 {
             return self.clone();
         }
         let mut lo = vec![f32::INFINITY; d];
@@ -203,32 +203,33 @@ impl VectorSet {
         let bits = (64 / d).min(21) as u32;
         let levels = (1u64 << bits) as f64;
         let finest = span / (levels - 1.0);
-        let bin = |width: f64| -> (Vec<(u64, u32)>, usize) {
-            let mut keyed: Vec<(u64, u32)> = self
-                .rows()
-                .enumerate()
-                .map(|(i, r)| {
-                    let mut key = 0u64;
-                    for c in 0..d {
-                        let cell = (((r[c] - lo[c]) as f64) / width).floor() as u64;
-                        key = (key << bits) | cell.min(levels as u64 - 1);
-                    }
-                    (key, i as u32)
-                })
-                .collect();
-            keyed.sort_unstable();
-            let occupied = 1 + keyed.windows(2).filter(|w| w[0].0 != w[1].0).count();
-            (keyed, occupied)
+        // Keys are unique (the row index is part of each), so the parallel
+        // sort's order is the sequential one.
+        let bin = |width: f64, keyed: &mut Vec<(u64, u32)>| -> usize {
+            keyed.clear();
+            keyed.extend(self.rows().enumerate().map(|(i, r)| {
+                let mut key = 0u64;
+                for c in 0..d {
+                    let cell = (((r[c] - lo[c]) as f64) / width).floor() as u64;
+                    key = (key << bits) | cell.min(levels as u64 - 1);
+                }
+                (key, i as u32)
+            }));
+            keyed.par_sort_unstable();
+            1 + keyed.windows(2).filter(|w| w[0].0 != w[1].0).count()
         };
+        let mut keyed: Vec<(u64, u32)> = Vec::with_capacity(n);
         // Data rarely fill their bounding box, so the width is searched:
         // the occupied count falls as a power of the width, whose exponent
         // (the data's apparent dimension) is estimated from the tries.
         let mut width = (span / (max_cells as f64).powf(1.0 / d as f64)).max(finest);
         let mut exponent = 2.0f64;
         let mut last: Option<(f64, usize)> = None;
-        let mut fitting: Option<(f64, Vec<(u64, u32)>)> = None;
+        // The narrowest fitting width tried, and its sorted keys.
+        let mut fitting: Option<f64> = None;
+        let mut best: Vec<(u64, u32)> = Vec::new();
         for _ in 0..8 {
-            let (keyed, occupied) = bin(width);
+            let occupied = bin(width, &mut keyed);
             if let Some((w0, o0)) = last {
                 let ratio = (o0 as f64 / occupied as f64).ln() / (width / w0).ln();
                 if ratio.is_finite() && ratio > 0.5 {
@@ -237,8 +238,9 @@ impl VectorSet {
             }
             last = Some((width, occupied));
             let fits = occupied <= max_cells;
-            if fits && fitting.as_ref().is_none_or(|(w, _)| width < *w) {
-                fitting = Some((width, keyed));
+            if fits && fitting.is_none_or(|w| width < w) {
+                fitting = Some(width);
+                std::mem::swap(&mut best, &mut keyed);
             }
             if fits && (occupied * 2 >= max_cells || width <= finest) {
                 break;
@@ -247,19 +249,16 @@ impl VectorSet {
             let step = aim.powf(-1.0 / exponent).clamp(0.25, 4.0);
             width = (width * step).max(finest);
         }
-        let keyed = match fitting {
-            Some((_, keyed)) => keyed,
-            None => {
-                // Still too many cells after the tries: widen until it fits.
-                loop {
-                    width *= 2.0;
-                    let (keyed, occupied) = bin(width);
-                    if occupied <= max_cells {
-                        break keyed;
-                    }
+        if fitting.is_none() {
+            // Still too many cells after the tries: widen until it fits.
+            loop {
+                width *= 2.0;
+                if bin(width, &mut best) <= max_cells {
+                    break;
                 }
             }
-        };
+        }
+        let keyed = best;
         let mut data = Vec::new();
         let mut weights = Vec::new();
         let mut sums = vec![0.0f64; d];
@@ -330,5 +329,7 @@ mod tests {
         }
         // Small sets come back whole.
         assert_eq!(v.coarsened(10_000), v);
+        // No room at all still means one cell.
+        assert_eq!(v.coarsened(0).len(), 1);
     }
 }
