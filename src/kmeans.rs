@@ -201,6 +201,14 @@ impl CheckedTrainConfig {
     pub fn get(&self) -> &TrainConfig {
         &self.0
     }
+
+    /// The Lloyd options of every run: the iteration cap and tolerance.
+    pub fn lloyd_options(&self) -> LloydOptions {
+        LloydOptions {
+            max_iterations: self.0.max_iterations,
+            tolerance: self.0.tolerance,
+        }
+    }
 }
 
 /// What happened during training.
@@ -458,10 +466,7 @@ pub fn train_constrained(
         });
     }
 
-    let opts = LloydOptions {
-        max_iterations: cfg.max_iterations,
-        tolerance: cfg.tolerance,
-    };
+    let opts = config.lloyd_options();
     // Many distinct low-dimensional vectors (photos): restarts run on grid
     // cell means, and only the best is refined on every distinct vector.
     let coarse = (cfg.coarse_start == CoarseStart::Auto
@@ -578,7 +583,7 @@ pub fn train_constrained(
 
 /// Whether single-vector moves over `vectors` with `k` codewords fit in
 /// [`MOVE_REFINE_BUDGET`] (n·k·d).
-fn moves_affordable(vectors: &VectorSet, k: usize) -> bool {
+pub(crate) fn moves_affordable(vectors: &VectorSet, k: usize) -> bool {
     vectors
         .len()
         .saturating_mul(k)

@@ -241,10 +241,19 @@ fn handled(px: [u8; 4], alpha: AlphaMode) -> [u8; 4] {
 }
 
 fn working(px: [u8; 4], layout: &PixelLayout, out: &mut Vec<f32>) {
-    out.extend_from_slice(&layout.space.to_space([px[0], px[1], px[2]]));
-    if layout.alpha == AlphaMode::Keep {
-        out.push(px[3] as f32 * alpha_scale(layout.space));
-    }
+    out.extend_from_slice(&working_point(px, layout)[..layout.dimension()]);
+}
+
+/// The pixel in the working space: its first [`PixelLayout::dimension`]
+/// components (alpha fourth when kept, scaled like the colour).
+fn working_point(px: [u8; 4], layout: &PixelLayout) -> [f32; 4] {
+    let [a, b, c] = layout.space.to_space([px[0], px[1], px[2]]);
+    let alpha = if layout.alpha == AlphaMode::Keep {
+        px[3] as f32 * alpha_scale(layout.space)
+    } else {
+        0.0
+    };
+    [a, b, c, alpha]
 }
 
 /// What training a palette produced.
@@ -627,14 +636,19 @@ impl Palette {
         if let Some(i) = self.reserved_for(px) {
             return i;
         }
-        let mut v = Vec::with_capacity(self.layout.dimension());
-        working(handled(px, self.layout.alpha), &self.layout, &mut v);
-        self.nearest(&v)
+        let v = working_point(handled(px, self.layout.alpha), &self.layout);
+        self.nearest(&v[..self.layout.dimension()])
+    }
+
+    /// [`Palette::index_of`] for every colour of `colours` (as read, with
+    /// pixel counts), on all threads.
+    pub fn indices_of(&self, colours: &[([u8; 4], u64)]) -> Vec<u32> {
+        colours.par_iter().map(|&(c, _)| self.index_of(c)).collect()
     }
 
     fn map_plain(&self, image: &RgbaImage) -> Vec<u32> {
         let hist = colour_histogram(image);
-        let index: Vec<u32> = hist.par_iter().map(|&(c, _)| self.index_of(c)).collect();
+        let index = self.indices_of(&hist);
         let lookup: PackedMap<u32> = hist
             .iter()
             .zip(index)
@@ -831,9 +845,28 @@ fn pair_key(c: [u8; 4], i: u32) -> u64 {
 /// mapped to its nearest entry without dithering ([`Palette::index_of`]):
 /// the same figures [`measure`] gives for an undithered image of them.
 pub fn measure_colours(colours: &[([u8; 4], u64)], palette: &Palette) -> Result<ImageError> {
+    measure_indexed(colours, &palette.indices_of(colours), palette)
+}
+
+/// [`measure_colours`] with the colours' indices already known (from
+/// [`Palette::indices_of`]).
+pub fn measure_indexed(
+    colours: &[([u8; 4], u64)],
+    indices: &[u32],
+    palette: &Palette,
+) -> Result<ImageError> {
+    if indices.len() != colours.len() {
+        return Err(Error::new(
+            "measuring",
+            ErrorKind::Shape(format!(
+                "{} indices for {} colours",
+                indices.len(),
+                colours.len()
+            )),
+        ));
+    }
     let mut pairs: PackedMap<u64> = PackedMap::default();
-    for &(c, n) in colours {
-        let i = palette.index_of(c);
+    for (&(c, n), &i) in colours.iter().zip(indices) {
         if palette.reserved_for(c) == Some(i) {
             continue;
         }

@@ -13,9 +13,11 @@ use std::collections::HashSet;
 use crate::codebook::TrainingFacts;
 use crate::encode::Encoder;
 use crate::error::Result;
+use rayon::prelude::*;
+
 use crate::kmeans::{
-    lloyd_constrained, refine_by_moves, train_constrained, CheckedTrainConfig, Constraint,
-    LloydOptions, Seeding, StopReason, MOVE_PASSES, MOVE_REFINE_BUDGET,
+    lloyd_constrained, moves_affordable, refine_by_moves, train_constrained, CheckedTrainConfig,
+    Constraint, LloydOptions, Seeding, StopReason, MOVE_PASSES,
 };
 use crate::metrics::squared_error;
 use crate::rng::{derive_seed, SeededRng};
@@ -86,26 +88,43 @@ pub(crate) fn grow(
     config: &CheckedTrainConfig,
 ) -> Result<Stage> {
     let cfg = config.get();
-    let mut best: Option<(Stage, u32)> = None;
-    for r in 0..cfg.restarts {
-        let seed = derive_seed(derive_seed(cfg.seed, size as u64), r as u64);
-        let mut rng = SeededRng::new(seed);
-        let mut stage = from.clone();
-        while stage.codewords.len() / subject.vectors.dimension() < size {
-            match split_round(subject, &stage, size, cfg_opts(config), &mut rng)? {
-                Some(next) => stage = next,
-                None => break,
-            }
-        }
-        if best
-            .as_ref()
-            .is_none_or(|(b, _)| stage.distortion < b.distortion)
-        {
-            best = Some((stage, r));
-        }
-    }
-    let (mut stage, _) = best.expect("at least one restart");
     let d = subject.vectors.dimension();
+    let from_assessed = assess(subject.vectors, &from.codewords)?;
+    // Restarts are independent (each has its own derived seed), so they run
+    // side by side; the first of the lowest is kept.
+    let tries: Vec<Stage> = (0..cfg.restarts)
+        .into_par_iter()
+        .with_max_len(1)
+        .map(|r| -> Result<Stage> {
+            let seed = derive_seed(derive_seed(cfg.seed, size as u64), r as u64);
+            let mut rng = SeededRng::new(seed);
+            let mut stage = from.clone();
+            // The assessment of `stage`'s codewords, carried from round to round.
+            let mut assessed: Option<Assessed> = None;
+            while stage.size(d) < size {
+                let current = assessed.as_ref().unwrap_or(&from_assessed);
+                let opts = config.lloyd_options();
+                match split_round(subject, &stage, current, size, opts, &mut rng)? {
+                    Some((next, a)) => {
+                        stage = next;
+                        assessed = Some(a);
+                    }
+                    None => break,
+                }
+            }
+            Ok(stage)
+        })
+        .collect::<Result<_>>()?;
+    let mut stage = tries
+        .into_iter()
+        .reduce(|best, s| {
+            if s.distortion < best.distortion {
+                s
+            } else {
+                best
+            }
+        })
+        .expect("at least one restart");
     let got = stage.size(d);
     stage.notices.clear();
     if got < size {
@@ -123,13 +142,6 @@ pub(crate) fn grow(
         ..stage.facts
     };
     Ok(stage)
-}
-
-fn cfg_opts(config: &CheckedTrainConfig) -> LloydOptions {
-    LloydOptions {
-        max_iterations: config.get().max_iterations,
-        tolerance: config.get().tolerance,
-    }
 }
 
 /// Nearest-codeword labels and per-cluster figures of one codebook.
@@ -183,21 +195,22 @@ fn assess(vectors: &VectorSet, codewords: &[f32]) -> Result<Assessed> {
 }
 
 /// One round: adds up to one new codeword per cluster (the clusters of
-/// largest error first, never a fixed one), refines, and returns the result,
-/// or `None` when no codeword can be added (every cluster is exact, or the
-/// projection leaves no free point).
+/// largest error first, never a fixed one), refines, and returns the result
+/// with its assessment, or `None` when no codeword can be added (every
+/// cluster is exact, or the projection leaves no free point). `a` is the
+/// assessment of `stage`'s codewords.
 fn split_round(
     subject: Subject<'_>,
     stage: &Stage,
+    a: &Assessed,
     size: usize,
     opts: LloydOptions,
     rng: &mut SeededRng,
-) -> Result<Option<Stage>> {
+) -> Result<Option<(Stage, Assessed)>> {
     let v = subject.vectors;
     let d = v.dimension();
-    let k = stage.codewords.len() / d;
+    let k = stage.size(d);
     let fixed = subject.constraint.fixed.len() / d;
-    let a = assess(v, &stage.codewords)?;
     let mut order: Vec<usize> = (fixed..k).filter(|&j| a.cluster_error[j] > 0.0).collect();
     order.sort_by(|&x, &y| {
         a.cluster_error[y]
@@ -243,10 +256,9 @@ fn split_round(
     }
     let start = assess(v, &init)?;
     let refined = lloyd_constrained(v, &init, &opts, subject.constraint)?;
-    let work = v.len().saturating_mul(init.len());
     let refined = if subject.constraint.snap.is_none()
         && subject.constraint.fixed.is_empty()
-        && work <= MOVE_REFINE_BUDGET
+        && moves_affordable(v, init.len() / d)
     {
         refine_by_moves(v, &refined, &opts, MOVE_PASSES)?
     } else {
@@ -260,27 +272,28 @@ fn split_round(
         .len()
         == refined.codewords.len() / d;
     let after = assess(v, &refined.codewords)?;
-    let (codewords, distortion, iterations, stopped_by) =
+    let (codewords, kept, iterations, stopped_by) =
         if distinct && after.distortion <= start.distortion {
             (
                 refined.codewords,
-                after.distortion,
+                after,
                 refined.iterations,
                 refined.stopped_by,
             )
         } else {
-            (init, start.distortion, 0, StopReason::Converged)
+            (init, start, 0, StopReason::Converged)
         };
-    Ok(Some(Stage {
+    let next = Stage {
         codewords,
-        distortion,
+        distortion: kept.distortion,
         facts: TrainingFacts {
             iterations,
             stopped_by,
             ..stage.facts.clone()
         },
         notices: Vec::new(),
-    }))
+    };
+    Ok(Some((next, kept)))
 }
 
 #[cfg(test)]

@@ -11,7 +11,7 @@ use crate::error::Result;
 use crate::format::{codebook_to_bytes, stream_file_len, ImageInfo, StreamHeader};
 use crate::load::RgbaImage;
 use crate::metrics::{index_entropy_bits, psnr_db};
-use crate::palette::{measure_colours, Palette, PaletteConfig, PaletteInput, PaletteOrder};
+use crate::palette::{measure_indexed, Palette, PaletteConfig, PaletteInput, PaletteOrder};
 use crate::rng::derive_seed;
 
 use super::grow::Stage;
@@ -22,15 +22,13 @@ use super::{CurvePoint, HeldOut, Quality, Rate};
 const HOLDOUT_STREAM: u64 = 0x686f_6c64_6f75_7421;
 
 /// Images ready for a curve: the palette input of the training pixels, and
-/// the colour counts of the held-out and of all pixels.
+/// the colour counts of the training and held-out pixels.
 #[derive(Debug, Clone)]
 pub struct ImageSource {
     pub(super) input: PaletteInput,
     /// Training pixels as (colour as read, count).
     training: Vec<([u8; 4], u64)>,
     held: Option<Vec<([u8; 4], u64)>>,
-    /// Every pixel as (colour as read, count).
-    all: Vec<([u8; 4], u64)>,
     /// Width and height of each image.
     sizes: Vec<(u32, u32)>,
     /// Messages for the user.
@@ -65,14 +63,12 @@ impl ImageSource {
         };
         let mut training: HashMap<[u8; 4], u64> = HashMap::new();
         let mut held: HashMap<[u8; 4], u64> = HashMap::new();
-        let mut all: HashMap<[u8; 4], u64> = HashMap::new();
         for (i, img) in images.iter().enumerate() {
             for (p, px) in img.pixels.iter().enumerate() {
                 let out = masks.as_ref().is_some_and(|m| m[i][p]);
                 *(if out { &mut held } else { &mut training })
                     .entry(*px)
                     .or_insert(0) += 1;
-                *all.entry(*px).or_insert(0) += 1;
             }
         }
         let training = counted(training);
@@ -81,7 +77,12 @@ impl ImageSource {
         let mut notices = Vec::new();
         if input.transparent > 0 || held.iter().any(|(c, _)| c[3] == 0) {
             input.layout.transparent_entry = true;
-            let t: u64 = all.iter().filter(|(c, _)| c[3] == 0).map(|(_, n)| n).sum();
+            let t: u64 = training
+                .iter()
+                .chain(&held)
+                .filter(|(c, _)| c[3] == 0)
+                .map(|(_, n)| n)
+                .sum();
             notices.push(format!(
                 "{t} fully transparent pixels share palette entry 0 (alpha 0); sizes count it"
             ));
@@ -90,7 +91,6 @@ impl ImageSource {
             input,
             training,
             held: masks.map(|_| held),
-            all: counted(all),
             sizes,
             notices,
         })
@@ -103,7 +103,7 @@ impl ImageSource {
 
     /// Pixels in all images.
     pub fn pixels(&self) -> u64 {
-        self.all.iter().map(|(_, n)| n).sum()
+        self.training.iter().map(|(_, n)| n).sum::<u64>() + self.held_out()
     }
 
     /// Held-out pixels.
@@ -140,19 +140,29 @@ impl ImageSource {
         let size = codebook.size();
         let codebook_bytes = codebook_to_bytes(&codebook)?.len() as u64;
         let palette = Palette::from_codebook(&codebook)?;
-        let error = measure_colours(&self.training, &palette)?;
+        // Each distinct colour is looked up once, for the error and the
+        // index counts alike.
+        let training = palette.indices_of(&self.training);
+        let error = measure_indexed(&self.training, &training, &palette)?;
+        let held = self.held.as_ref().map(|h| (h, palette.indices_of(h)));
         let mut counts = vec![0u64; size];
-        for &(c, n) in &self.all {
-            counts[palette.index_of(c) as usize] += n;
+        let indexed = self.training.iter().zip(&training);
+        let held_indexed = held.iter().flat_map(|(h, i)| h.iter().zip(i));
+        for (&(_, n), &i) in indexed.chain(held_indexed) {
+            counts[i as usize] += n;
         }
+        let mut header = StreamHeader::for_codebook(&codebook, 0, None)?;
         let mut stream_bytes = 0;
         for &(width, height) in &self.sizes {
-            let mut header = StreamHeader::for_codebook(&codebook, (width * height) as u64, None)?;
+            header.vectors = u64::from(width) * u64::from(height);
             header.image = Some(ImageInfo { width, height });
             stream_bytes += stream_file_len(&header)?;
         }
-        let holdout = match &self.held {
-            Some(h) => Some(HeldOut::new(measure_colours(h, &palette)?.mse, error.mse)),
+        let holdout = match &held {
+            Some((h, i)) => Some(HeldOut::new(
+                measure_indexed(h, i, &palette)?.mse,
+                error.mse,
+            )),
             None => None,
         };
         Ok(CurvePoint {

@@ -3,7 +3,7 @@
 //! the scaled space, the largest error in the user's units, rate). Pure:
 //! works on tables already read.
 
-use crate::codebook::{bits_for_size, Codebook, Meaning, RecordLayout};
+use crate::codebook::{bits_for_size, Codebook, Meaning, RecordLayout, TimeAxis};
 use crate::encode::Encoder;
 use crate::error::{Error, ErrorKind, Result};
 use crate::export::undo_scaling;
@@ -31,7 +31,10 @@ pub struct RecordSource {
     per_table: Vec<usize>,
     /// The training vectors, merged where identical (weighted).
     pub(super) unique: VectorSet,
-    held: Option<VectorSet>,
+    /// Per vector of `all`, whether it is held out; none without a holdout.
+    held: Option<Vec<bool>>,
+    /// Per table, its regular time axis, if it has one (for stream headers).
+    times: Vec<Option<TimeAxis>>,
     /// Mean over components of the training vectors' variance (scaled space).
     pub(super) variance: f64,
     /// Messages for the user.
@@ -92,21 +95,20 @@ impl RecordSource {
             data.extend_from_slice(to_vectors(t, &layout)?.as_flat());
         }
         let all = VectorSet::new(d, data)?;
-        let pick = |held: bool| -> Result<VectorSet> {
-            let flat: Vec<f32> = all
-                .rows()
-                .zip(&mask)
-                .filter(|(_, &m)| m == held)
-                .flat_map(|(r, _)| r.iter().copied())
-                .collect();
-            VectorSet::new(d, flat)
-        };
-        let training = pick(false)?;
-        let held = match holdout {
-            Some(_) => Some(pick(true)?),
-            None => None,
-        };
-        let unique = training.deduplicated();
+        let flat: Vec<f32> = all
+            .rows()
+            .zip(&mask)
+            .filter(|(_, &held)| !held)
+            .flat_map(|(r, _)| r.iter().copied())
+            .collect();
+        let unique = VectorSet::new(d, flat)?.deduplicated();
+        let times = tables
+            .iter()
+            .map(|t| match time_axis(t) {
+                TimeInfo::Regular(axis) => Some(axis),
+                _ => None,
+            })
+            .collect();
         Ok(RecordSource {
             tables: tables.to_vec(),
             variance: variance_per_component(&unique),
@@ -114,7 +116,8 @@ impl RecordSource {
             unique,
             all,
             per_table: frames,
-            held,
+            held: holdout.map(|_| mask),
+            times,
             notices,
         })
     }
@@ -131,7 +134,9 @@ impl RecordSource {
 
     /// Held-out vectors.
     pub fn held_out(&self) -> usize {
-        self.held.as_ref().map_or(0, |h| h.len())
+        self.held
+            .as_ref()
+            .map_or(0, |m| m.iter().filter(|&&h| h).count())
     }
 
     /// Distinct training vectors: the largest codebook worth training.
@@ -159,9 +164,10 @@ impl RecordSource {
         let encoder = Encoder::new(&codebook.codewords, d)?;
         let labels = encoder.encode(&self.all)?;
         let mut meter = RecordErrorMeter::new(&self.layout);
+        let mut header = StreamHeader::for_codebook(&codebook, 0, None)?;
         let mut stream_bytes = 0;
         let mut offset = 0;
-        for (t, &n) in self.tables.iter().zip(&self.per_table) {
+        for ((t, &n), time) in self.tables.iter().zip(&self.per_table).zip(&self.times) {
             let idx = &labels[offset..offset + n];
             offset += n;
             let decoded = decode_vectors(&codebook.codewords, d, idx);
@@ -169,33 +175,26 @@ impl RecordSource {
                 &t.values,
                 &undo_scaling(&decoded, d, &self.layout, t.rows())?,
             );
-            let time = match time_axis(t) {
-                TimeInfo::Regular(axis) => Some(axis),
-                _ => None,
-            };
-            let header = StreamHeader::for_codebook(
-                &codebook,
-                n as u64,
-                Some(RecordInfo {
-                    rows: t.rows() as u64,
-                    time,
-                }),
-            )?;
+            header.vectors = n as u64;
+            header.records = Some(RecordInfo {
+                rows: t.rows() as u64,
+                time: *time,
+            });
             stream_bytes += stream_file_len(&header)?;
         }
         let mse = stage.distortion / (self.unique.total_weight() * d as f64);
-        let holdout = match &self.held {
-            Some(h) => {
-                let idx = encoder.encode(h)?;
-                let sq: f64 = h
-                    .rows()
-                    .zip(&idx)
-                    .map(|(r, &i)| squared_error(r, codebook.codeword(i as usize)))
-                    .sum();
-                Some(HeldOut::new(sq / (h.len() * d) as f64, mse))
-            }
-            None => None,
-        };
+        // The held-out vectors' labels are among those of all vectors.
+        let holdout = self.held.as_ref().map(|mask| {
+            let sq: f64 = self
+                .all
+                .rows()
+                .zip(&labels)
+                .zip(mask)
+                .filter(|(_, &held)| held)
+                .map(|((r, &i), _)| squared_error(r, codebook.codeword(i as usize)))
+                .sum();
+            HeldOut::new(sq / (self.held_out() * d) as f64, mse)
+        });
         let rate = Rate::new(
             bits_for_size(size),
             index_entropy_bits(&index_counts(&labels, size)),
