@@ -21,11 +21,11 @@ fn curve_of(values: &[f32], dimension: usize, sizes: &str, train: TrainConfig) -
     let columns = (0..dimension).map(|c| format!("x{c}")).collect();
     let table = RecordTable::new(columns, values.iter().map(|&v| v as f64).collect());
     let opts = CsvOptions::new().scaling(Scaling::None);
-    let source = CurveSource::Records(RecordSource::new(&[table], &opts, None).unwrap());
     let config = CurveConfig::new(train)
         .sizes(Sizes::parse(sizes).unwrap())
         .check()
         .unwrap();
+    let source = CurveSource::Records(RecordSource::new(&[table], &opts, &config).unwrap());
     measure_curve(&source, &config, &|_| {}).unwrap()
 }
 

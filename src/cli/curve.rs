@@ -99,7 +99,7 @@ pub fn run(a: CurveArgs) -> Result<()> {
             }
             let opts = csv_options(&a.read, Some(&a.shape))?;
             let tables = read_tables(&a.inputs, &opts)?;
-            CurveSource::Records(RecordSource::new(&tables, &opts, a.holdout)?)
+            CurveSource::Records(RecordSource::new(&tables, &opts, &config)?)
         }
         InputKind::Images => {
             if a.shape.columns.is_some() || a.shape.frame != 1 {
@@ -111,7 +111,7 @@ pub fn run(a: CurveArgs) -> Result<()> {
             for p in &a.inputs {
                 list.push(load_image(p, a.colour.max_pixels)?);
             }
-            CurveSource::Images(ImageSource::new(&list, &palette, a.holdout, a.kmeans.seed)?)
+            CurveSource::Images(ImageSource::new(&list, &palette, &config)?)
         }
     };
 

@@ -11,7 +11,7 @@ use serde_json::{json, Value};
 use vqforge::codebook::Scaling;
 use vqforge::colour::DisplayFormat;
 use vqforge::curve::{CurveConfig, CurveSource, Fit, ImageSource, InputKind, RecordSource, Target};
-use vqforge::kmeans::{TrainConfig, DEFAULT_SEED};
+use vqforge::kmeans::TrainConfig;
 use vqforge::load::{read_table, CsvOptions};
 use vqforge::palette::PaletteConfig;
 
@@ -86,10 +86,10 @@ pub fn run(a: &DemoArgs) -> Result<Value> {
     let text = std::fs::read(&log).with_context(|| format!("reading sample input {name}"))?;
     let opts = CsvOptions::new().frame(FRAME).scaling(Scaling::ZScore);
     let table = read_table(&text[..], &name, &opts)?;
-    let source = CurveSource::Records(RecordSource::new(&[table], &opts, Some(LOG_HOLDOUT))?);
     let config = CurveConfig::new(TrainConfig::new(1))
         .holdout(LOG_HOLDOUT)
         .check()?;
+    let source = CurveSource::Records(RecordSource::new(&[table], &opts, &config)?);
     let curve = measure_with_progress(&source, &config)?;
     let (plot, csv) = (
         a.out_dir.join("greenhouse-curve.svg"),
@@ -108,10 +108,10 @@ pub fn run(a: &DemoArgs) -> Result<Value> {
         load_image(&splash, None).with_context(|| format!("sample image {}", splash.display()))?;
     let mut palette = PaletteConfig::new(256);
     palette.display = DisplayFormat::Rgb565;
-    let source = CurveSource::Images(ImageSource::new(&[image], &palette, None, DEFAULT_SEED)?);
     let config = CurveConfig::new(TrainConfig::new(1))
         .target(Target::PsnrDb(SPLASH_PSNR_DB))
         .check()?;
+    let source = CurveSource::Images(ImageSource::new(&[image], &palette, &config)?);
     let curve = measure_with_progress(&source, &config)?;
     debug_assert_eq!(curve.kind, InputKind::Images);
     let (plot, csv) = (

@@ -16,7 +16,7 @@ use crate::rng::derive_seed;
 
 use super::grow::Stage;
 use super::holdout::holdout_tiles;
-use super::{CurvePoint, HeldOut, Quality, Rate};
+use super::{CheckedCurveConfig, CurvePoint, HeldOut, Quality, Rate};
 
 /// Mixed into the master seed for the held-out tiles.
 const HOLDOUT_STREAM: u64 = 0x686f_6c64_6f75_7421;
@@ -42,15 +42,16 @@ fn counted(counts: HashMap<[u8; 4], u64>) -> Vec<([u8; 4], u64)> {
 }
 
 impl ImageSource {
-    /// Prepares `images` for palettes fitted as `config` says (its size is
-    /// not used); with `holdout`, that fraction of square tiles, drawn with
-    /// a seed derived from the master `seed`, is held out ([`holdout_tiles`]).
+    /// Prepares `images` for palettes fitted as `palette` says (its size is
+    /// not used); with a holdout in `config`, that fraction of square tiles,
+    /// drawn with a seed derived from the training's master seed, is held
+    /// out ([`holdout_tiles`]).
     pub fn new(
         images: &[RgbaImage],
-        config: &PaletteConfig,
-        holdout: Option<f64>,
-        seed: u64,
+        palette: &PaletteConfig,
+        config: &CheckedCurveConfig,
     ) -> Result<Self> {
+        let (holdout, seed) = (config.get().holdout, config.get().train.seed);
         let sizes: Vec<(u32, u32)> = images.iter().map(|i| (i.width, i.height)).collect();
         let masks = match holdout {
             // A stream of its own, apart from the training restarts' seeds.
@@ -73,7 +74,7 @@ impl ImageSource {
         }
         let training = counted(training);
         let held = counted(held);
-        let mut input = PaletteInput::from_histogram(&training, config)?;
+        let mut input = PaletteInput::from_histogram(&training, palette)?;
         let mut notices = Vec::new();
         if input.transparent > 0 || held.iter().any(|(c, _)| c[3] == 0) {
             input.layout.transparent_entry = true;

@@ -20,10 +20,10 @@
 //! // Three tight groups of readings on one column.
 //! let values: Vec<f64> = (0..60).map(|i| (i % 3) as f64 * 10.0 + (i % 5) as f64 * 0.01).collect();
 //! let table = RecordTable::new(vec!["v".into()], values);
-//! let source = CurveSource::Records(RecordSource::new(&[table], &CsvOptions::new(), None)?);
 //! let config = CurveConfig::new(TrainConfig::new(1))
 //!     .sizes(Sizes::parse("1..8")?)
 //!     .check()?;
+//! let source = CurveSource::Records(RecordSource::new(&[table], &CsvOptions::new(), &config)?);
 //! let curve = measure_curve(&source, &config, &|_| {})?;
 //! assert_eq!(curve.knee, Some(3));
 //! assert!(matches!(curve.recommendation.verdict, Verdict::Knee { size: 3 }));
@@ -529,14 +529,16 @@ pub enum CurveEvent {
 /// The part of a measurement that depends on the input kind.
 struct Engine<'a> {
     subject: Subject<'a>,
-    reserved: usize,
+    /// Codewords to train for a codebook of a size (images: less the
+    /// transparent entry, refused when nothing is left for colours).
+    trained: &'a dyn Fn(usize) -> Result<usize>,
     train: &'a CheckedTrainConfig,
     measure: &'a dyn Fn(&Stage) -> Result<CurvePoint>,
 }
 
 impl Engine<'_> {
     fn scratch(&self, size: usize) -> Result<(Stage, CurvePoint)> {
-        let stage = scratch(self.subject, size - self.reserved, self.train)?;
+        let stage = scratch(self.subject, (self.trained)(size)?, self.train)?;
         let point = (self.measure)(&stage)?;
         Ok((stage, point))
     }
@@ -545,7 +547,7 @@ impl Engine<'_> {
         match growth {
             Growth::Independent => self.scratch(size),
             Growth::Split => {
-                let stage = grow(self.subject, from, size - self.reserved, self.train)?;
+                let stage = grow(self.subject, from, (self.trained)(size)?, self.train)?;
                 let point = (self.measure)(&stage)?;
                 Ok((stage, point))
             }
@@ -567,7 +569,7 @@ pub fn measure_curve(
                     vectors: &r.unique,
                     constraint: Constraint::default(),
                 },
-                reserved: 0,
+                trained: &Ok,
                 train: &config.train,
                 measure: &measure,
             };
@@ -585,16 +587,15 @@ pub fn measure_curve(
                 largest: r.distinct(),
                 smallest: 1,
                 what: "distinct vectors",
+                origin: r.variance,
                 target_mse,
                 notices: r.notices.clone(),
             };
             run(&engine, facts, config, observe)
         }
         CurveSource::Images(i) => {
-            if let Some(t) = &config.config.target {
-                t.check_kind(InputKind::Images)?;
-            }
             let snap = |v: &mut [f32]| i.input.snap(v);
+            let trained = |size: usize| i.input.trained_size(size);
             let measure = |s: &Stage| i.measure(s);
             let engine = Engine {
                 subject: Subject {
@@ -604,7 +605,7 @@ pub fn measure_curve(
                         snap: Some(&snap),
                     },
                 },
-                reserved: i.reserved(),
+                trained: &trained,
                 train: &config.train,
                 measure: &measure,
             };
@@ -622,17 +623,10 @@ pub fn measure_curve(
                 largest: i.largest(),
                 smallest: i.input.layout.pinned.len() + i.reserved() + 1,
                 what: "distinct colours (pinned and transparent entries included)",
+                origin: variance_per_component(&i.input.vectors),
                 target_mse,
                 notices: i.notices.clone(),
             };
-            for &size in config
-                .config
-                .sizes
-                .iter()
-                .flat_map(|s| s.as_slice().first())
-            {
-                i.input.trained_size(size)?;
-            }
             run(&engine, facts, config, observe)
         }
     }
@@ -648,6 +642,8 @@ struct Facts {
     largest: usize,
     smallest: usize,
     what: &'static str,
+    /// Distortion per component of the one-codeword codebook (the mean).
+    origin: f64,
     target_mse: Option<f64>,
     notices: Vec<String>,
 }
@@ -715,8 +711,7 @@ fn run(
         stages.push(stage);
         points.push(point);
     }
-    let origin = variance_per_component(engine.subject.vectors);
-    let knee = curve_knee(origin, &points, cfg.sensitivity)?;
+    let knee = curve_knee(facts.origin, &points, cfg.sensitivity)?;
     let mut searched = Vec::new();
     let recommendation = match cfg.target {
         None => match knee {

@@ -17,7 +17,7 @@ use crate::vectors::VectorSet;
 
 use super::grow::Stage;
 use super::holdout::holdout_blocks;
-use super::{variance_per_component, CurvePoint, HeldOut, Quality, Rate};
+use super::{variance_per_component, CheckedCurveConfig, CurvePoint, HeldOut, Quality, Rate};
 
 /// Record tables ready for a curve: the layout fitted on the training rows,
 /// every vector, and which are held out.
@@ -47,10 +47,15 @@ fn rows_of(table: &RecordTable, frame: usize, f: usize) -> std::ops::Range<usize
 
 impl RecordSource {
     /// Prepares `tables` (same columns) with the frame and scaling of `opts`;
-    /// with `holdout`, that fraction of the vectors is held out as
-    /// contiguous blocks ([`holdout_blocks`]) and the scaling is fitted on
+    /// with a holdout in `config`, that fraction of the vectors is held out
+    /// as contiguous blocks ([`holdout_blocks`]) and the scaling is fitted on
     /// the rest only.
-    pub fn new(tables: &[RecordTable], opts: &CsvOptions, holdout: Option<f64>) -> Result<Self> {
+    pub fn new(
+        tables: &[RecordTable],
+        opts: &CsvOptions,
+        config: &CheckedCurveConfig,
+    ) -> Result<Self> {
+        let holdout = config.get().holdout;
         let stage = "preparing records";
         let first = same_columns(tables, stage)?;
         if opts.frame == 0 {

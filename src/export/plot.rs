@@ -61,8 +61,8 @@ struct PanelText<'a> {
 ///
 /// let values: Vec<f64> = (0..90).map(|i| (i % 3) as f64 * 10.0 + (i % 7) as f64 * 0.1).collect();
 /// let table = RecordTable::new(vec!["v".into()], values);
-/// let source = CurveSource::Records(RecordSource::new(&[table], &CsvOptions::new(), None)?);
 /// let config = CurveConfig::new(TrainConfig::new(1)).sizes(Sizes::parse("1..8")?).check()?;
+/// let source = CurveSource::Records(RecordSource::new(&[table], &CsvOptions::new(), &config)?);
 /// let curve = measure_curve(&source, &config, &|_| {})?;
 /// let svg = curve_svg(&curve, "readings")?;
 /// assert!(svg.starts_with("<svg") && svg.contains("<text") && svg.contains("knee"));
