@@ -1005,11 +1005,17 @@ impl Neighbours {
         &self.rows[a * (self.k - 1)..(a + 1) * (self.k - 1)]
     }
 
-    /// How many codewords [`Neighbours::nearest_two`] would measure for a
-    /// vector at distance `u` from codeword `a`.
-    fn within(&self, a: usize, u: f64, rel: f64) -> usize {
+    /// Whether [`Neighbours::nearest_two`] would measure more than `count`
+    /// codewords for a vector at distance `u` from codeword `a`: codeword
+    /// `a` and every other one within reach, so whether the `count`-th
+    /// nearest other one is within reach (one look-up, no search).
+    fn measures_more_than(&self, a: usize, u: f64, rel: f64, count: usize) -> bool {
         let reach = 2.0 * u * (1.0 + rel) + BOUND_FLOOR;
-        1 + self.row(a).partition_point(|&(gap, _)| gap <= reach)
+        count == 0
+            || self
+                .row(a)
+                .get(count - 1)
+                .is_some_and(|&(gap, _)| gap <= reach)
     }
 
     /// Half the distance from codeword a to the nearest other one.
@@ -1150,7 +1156,7 @@ impl BoundedAssign {
                             continue;
                         }
                         match &near {
-                            Some(near) if near.within(a, up[j], rel) * BATCH_GAIN < k => {
+                            Some(near) if !near.measures_more_than(a, up[j], rel, k / BATCH_GAIN) => {
                                 let (two, beyond) = near.nearest_two(r, a, up[j], codewords, rel);
                                 let (l, u, lo) = (&mut lab[j], &mut up[j], &mut low[j]);
                                 p.changed += u64::from(settle(r, codewords, two, beyond, l, u, lo));
