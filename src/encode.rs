@@ -422,6 +422,16 @@ impl Encoder {
         }
     }
 
+    /// The method batches use ([`Encoder::nearest_batch`]; never `Auto`):
+    /// `Scan` means the blocked kernel.
+    pub fn batch_method(&self) -> SearchMethod {
+        if self.blocked.is_some() {
+            SearchMethod::Scan
+        } else {
+            SearchMethod::KdTree
+        }
+    }
+
     /// Nearest codeword of one query of length `dimension`.
     #[inline]
     pub fn nearest(&self, query: &[f32]) -> Nearest {

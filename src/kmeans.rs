@@ -10,7 +10,7 @@
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
-use crate::encode::{distance_sq, Encoder, Nearest, NearestTwo, CHUNK_ROWS};
+use crate::encode::{distance_sq, Encoder, Nearest, NearestTwo, SearchMethod, CHUNK_ROWS};
 use crate::error::{Error, ErrorKind, Result};
 // Squared distance in f64 from explicit differences: the reported figure.
 use crate::metrics::squared_error as exact_sq;
@@ -1115,6 +1115,9 @@ impl BoundedAssign {
             (moved, near, half_gap)
         };
         let encoder = Encoder::new(codewords, d)?;
+        // Only the blocked kernel beats long neighbour lists; a tree batch
+        // (low dimensions) is a search per vector like theirs.
+        let blocked = encoder.batch_method() == SearchMethod::Scan;
         // The largest move and the largest move of any other codeword.
         let (mut top, mut top_at, mut runner) = (0.0f64, usize::MAX, 0.0f64);
         for (j, &m) in moved.iter().enumerate() {
@@ -1156,7 +1159,10 @@ impl BoundedAssign {
                             continue;
                         }
                         match &near {
-                            Some(near) if !near.measures_more_than(a, up[j], rel, k / BATCH_GAIN) => {
+                            Some(near)
+                                if !blocked
+                                    || !near.measures_more_than(a, up[j], rel, k / BATCH_GAIN) =>
+                            {
                                 let (two, beyond) = near.nearest_two(r, a, up[j], codewords, rel);
                                 let (l, u, lo) = (&mut lab[j], &mut up[j], &mut low[j]);
                                 p.changed += u64::from(settle(r, codewords, two, beyond, l, u, lo));
