@@ -83,6 +83,8 @@ pub struct TrainConfig {
     pub seed: u64,
     /// Whether restarts may run on grid cell means first. Default auto.
     pub coarse_start: CoarseStart,
+    /// Whether restarts may run on a sample of a large input. Default auto.
+    pub sampling: Sampling,
 }
 
 /// Whether training may start on a coarse stand-in for the data.
@@ -101,6 +103,31 @@ pub enum CoarseStart {
     /// Every restart runs on all distinct vectors.
     Never,
 }
+
+/// Whether training may run its restarts on a sample of the input.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Sampling {
+    /// When the input has more than [`SAMPLE_ABOVE_PER_CODEWORD`] × k
+    /// distinct vectors (and no coarse start applies), seeding, Lloyd and
+    /// the single-vector moves of every restart run on a seeded sample of
+    /// [`SAMPLE_PER_CODEWORD`] × k draws (with replacement, ∝ weight); the
+    /// restart whose codebook has the lowest distortion on all distinct
+    /// vectors is then refined on all of them with full Lloyd passes under
+    /// the usual stop rules. Reported in [`TrainReport::sample_draws`] and
+    /// a notice.
+    Auto,
+    /// Every restart runs on all distinct vectors.
+    Never,
+}
+
+/// Draws per codeword of a training sample ([`Sampling::Auto`]); the
+/// general-purpose engines cap their training sets at a multiple of k too.
+pub const SAMPLE_PER_CODEWORD: usize = 256;
+/// Distinct vectors per codeword above which [`Sampling::Auto`] samples:
+/// the sample is then at most a quarter of the input.
+pub const SAMPLE_ABOVE_PER_CODEWORD: usize = 4 * SAMPLE_PER_CODEWORD;
+/// Mixed into the master seed for the training sample's draws.
+const SAMPLE_STREAM: u64 = 0x7361_6d70_6c65_2121;
 
 /// The most components [`CoarseStart::Auto`] starts coarse with (colours
 /// with or without alpha); cells hold few vectors in more.
@@ -122,6 +149,7 @@ impl TrainConfig {
             tolerance: 1e-6,
             seed: DEFAULT_SEED,
             coarse_start: CoarseStart::Auto,
+            sampling: Sampling::Auto,
         }
     }
 
@@ -158,6 +186,12 @@ impl TrainConfig {
     /// Sets whether training may start coarse.
     pub fn coarse_start(mut self, c: CoarseStart) -> Self {
         self.coarse_start = c;
+        self
+    }
+
+    /// Sets whether restarts may run on a sample of a large input.
+    pub fn sampling(mut self, s: Sampling) -> Self {
+        self.sampling = s;
         self
     }
 
@@ -227,9 +261,9 @@ pub struct TrainReport {
     pub distortion: f64,
     /// `distortion` / (total weight × dimension): mean squared error per component.
     pub mse_per_component: f64,
-    /// Total distortion of every restart, in order (after a coarse start:
-    /// of its codebook on all distinct vectors, before the final refinement
-    /// of the kept one).
+    /// Total distortion of every restart, in order (after a coarse start or
+    /// on a sample: of its codebook on all distinct vectors, before the
+    /// final refinement of the kept one).
     pub restart_distortions: Vec<f64>,
     /// Index of the kept restart.
     pub best_restart: u32,
@@ -244,6 +278,9 @@ pub struct TrainReport {
     /// Cell means the restarts ran on, when training started coarse
     /// ([`CoarseStart`]).
     pub coarse_vectors: Option<usize>,
+    /// Draws of the sample the restarts ran on, when training sampled a
+    /// large input ([`Sampling`]).
+    pub sample_draws: Option<usize>,
     /// Things the user should know (e.g. fewer distinct vectors than k).
     pub notices: Vec<String>,
 }
@@ -461,6 +498,7 @@ pub fn train_constrained(
                 total_weight,
                 distinct_vectors: distinct,
                 coarse_vectors: None,
+                sample_draws: None,
                 notices,
             },
         });
@@ -474,7 +512,27 @@ pub fn train_constrained(
         && unique.len() > COARSE_CELLS
         && !moves_affordable(&unique, cfg.size))
     .then(|| unique.coarsened(COARSE_CELLS));
-    let stage = coarse.as_ref().unwrap_or(&unique);
+    // Many distinct vectors otherwise (long logs): restarts run on a seeded
+    // sample, and only the best is refined on every distinct vector.
+    let draws = SAMPLE_PER_CODEWORD.saturating_mul(cfg.size);
+    let sample = (coarse.is_none()
+        && cfg.sampling == Sampling::Auto
+        && unique.len() > SAMPLE_ABOVE_PER_CODEWORD.saturating_mul(cfg.size))
+    .then(|| {
+        unique.sampled(
+            draws,
+            &mut SeededRng::new(derive_seed(cfg.seed, SAMPLE_STREAM)),
+        )
+    })
+    .filter(|s| s.len() > cfg.size);
+    if let Some(s) = &sample {
+        notices.push(format!(
+            "trained on a sample: the restarts ran on {draws} vectors drawn at random from the {distinct} distinct ones ({} distinct in the sample); the best was then refined with full passes over all of them",
+            s.len()
+        ));
+    }
+    let stand_in = coarse.as_ref().or(sample.as_ref());
+    let stage = stand_in.unwrap_or(&unique);
     let free = constraint.without_snap();
     // Restarts are independent (each has its own derived seed), so they run
     // side by side; the single-vector moves inside each are sequential.
@@ -509,7 +567,7 @@ pub fn train_constrained(
                     lloyd_core(stage, &init, &opts, free, &on_iter)?
                 }
             };
-            if coarse.is_some() {
+            if stand_in.is_some() {
                 let polished = polish(stage, result, &opts, free, &on_iter)?;
                 let mut labels = vec![u32::MAX; unique.len()];
                 let on_all = assign(&unique, &polished.codewords, &mut labels)?.distortion;
@@ -533,7 +591,7 @@ pub fn train_constrained(
         .nth(best_restart)
         .expect("at least one restart ran");
     let best_restart = best_restart as u32;
-    let result = if coarse.is_some() {
+    let result = if stand_in.is_some() {
         let on_iter = |iteration: u32, distortion: f64| {
             observe(TrainEvent::Iteration {
                 restart: best_restart,
@@ -575,6 +633,7 @@ pub fn train_constrained(
             total_weight,
             distinct_vectors: distinct,
             coarse_vectors: coarse.as_ref().map(VectorSet::len),
+            sample_draws: sample.as_ref().map(|_| draws),
             notices,
         },
         codewords,
@@ -666,14 +725,6 @@ pub fn seed_random(vectors: &VectorSet, k: usize, rng: &mut SeededRng) -> Vec<f3
         .collect()
 }
 
-/// Draws an index with probability ∝ `mass[i]`, given the prefix sums.
-fn draw(prefix: &[f64], rng: &mut SeededRng) -> usize {
-    let total = *prefix.last().expect("non-empty");
-    let target = rng.unit_f64() * total;
-    let i = prefix.partition_point(|&p| p <= target);
-    i.min(prefix.len() - 1)
-}
-
 /// Greedy weighted k-means++ seeding. Needs more distinct vectors than `k`.
 pub fn seed_kmeans_plus_plus(vectors: &VectorSet, k: usize, rng: &mut SeededRng) -> Vec<f32> {
     seed_kmeans_plus_plus_around(vectors, k, rng, &[])
@@ -706,7 +757,7 @@ pub fn seed_kmeans_plus_plus_around(
                 Some(*s)
             })
             .collect();
-        centres.extend_from_slice(vectors.row(draw(&wprefix, rng)));
+        centres.extend_from_slice(vectors.row(rng.draw(&wprefix)));
     } else {
         centres.extend_from_slice(fixed);
     }
@@ -724,7 +775,7 @@ pub fn seed_kmeans_plus_plus_around(
         if *prefix.last().unwrap_or(&0.0) <= 0.0 {
             break; // every vector already sits on a centre
         }
-        let picks: Vec<usize> = (0..candidates).map(|_| draw(&prefix, rng)).collect();
+        let picks: Vec<usize> = (0..candidates).map(|_| rng.draw(&prefix)).collect();
         // How much each candidate would lower the potential.
         let gains: Vec<f64> = picks
             .par_iter()
@@ -1771,7 +1822,7 @@ mod tests {
                     Some(*s)
                 })
                 .collect();
-            centres.extend_from_slice(v.row(draw(&w, rng)));
+            centres.extend_from_slice(v.row(rng.draw(&w)));
         }
         let nearest = |x: &[f32], cs: &[f32]| {
             cs.chunks_exact(d)
@@ -1789,7 +1840,7 @@ mod tests {
             if prefix[n - 1] <= 0.0 {
                 break;
             }
-            let picks: Vec<usize> = (0..candidates).map(|_| draw(&prefix, rng)).collect();
+            let picks: Vec<usize> = (0..candidates).map(|_| rng.draw(&prefix)).collect();
             let potential = |p: usize| -> f64 {
                 (0..n)
                     .map(|i| v.weight(i) * closest[i].min(exact_sq(v.row(i), v.row(p))))
@@ -1802,6 +1853,45 @@ mod tests {
             centres.extend_from_slice(v.row(best.1));
         }
         centres
+    }
+
+    #[test]
+    fn large_inputs_train_on_a_sample_and_say_so() {
+        // 10 000 distinct points around 8 separated spots, k = 8: above
+        // 1 024 per codeword, so the restarts see 2 048 draws.
+        let spots: Vec<[f32; 2]> = (0..8)
+            .map(|i| [(i % 4) as f32 * 9.0, (i / 4) as f32 * 9.0])
+            .collect();
+        let v = gaussian_mixture(17, 10_000, &spots);
+        let auto = train(&v, &TrainConfig::new(8).check().unwrap()).unwrap();
+        assert_eq!(auto.report.sample_draws, Some(8 * SAMPLE_PER_CODEWORD));
+        assert!(auto.report.notices.iter().any(|n| n.contains("sample")));
+        // The same seed gives the same codebook.
+        assert_eq!(
+            auto,
+            train(&v, &TrainConfig::new(8).check().unwrap()).unwrap()
+        );
+        let full = train(
+            &v,
+            &TrainConfig::new(4)
+                .sampling(Sampling::Never)
+                .check()
+                .unwrap(),
+        )
+        .unwrap();
+        assert_eq!(full.report.sample_draws, None);
+        assert!(full.report.notices.is_empty());
+        // Refined on every vector, the result is as good as training on all
+        // of them (to 1 %; measured: equal here).
+        assert!(
+            auto.report.distortion <= full.report.distortion * 1.01,
+            "{} vs {}",
+            auto.report.distortion,
+            full.report.distortion
+        );
+        // Below the threshold nothing is sampled.
+        let small = train(&v, &TrainConfig::new(10).check().unwrap()).unwrap();
+        assert_eq!(small.report.sample_draws, None);
     }
 
     #[test]

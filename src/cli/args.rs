@@ -227,6 +227,21 @@ pub struct KmeansArgs {
     /// How the initial codewords are chosen.
     #[arg(long, value_enum, value_name = "METHOD", default_value = "kmeans++")]
     pub seeding: SeedingArg,
+
+    /// Large inputs (over 1024 distinct vectors per codeword): run the restarts on a
+    /// seeded sample of 256 per codeword, then refine the best on all (auto), or
+    /// always use all vectors (never).
+    #[arg(long, value_enum, value_name = "WHEN", default_value = "auto")]
+    pub sampling: SamplingArg,
+}
+
+/// When training may use a sample.
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum SamplingArg {
+    /// Above 1024 distinct vectors per codeword.
+    Auto,
+    /// Never: every restart sees every distinct vector.
+    Never,
 }
 
 #[derive(Debug, Args)]

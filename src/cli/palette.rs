@@ -379,6 +379,7 @@ pub fn run(a: PaletteArgs) -> Result<()> {
             "palette": palette.entries.iter().map(|e| hex([e[0], e[1], e[2]])).collect::<Vec<_>>(),
             "seed": t.report.seed,
             "coarse_start_cells": t.report.coarse_vectors,
+            "sample_draws": t.report.sample_draws,
             "seconds": seconds,
             "notices": t.notices,
         });
@@ -471,6 +472,7 @@ pub fn train_images(a: TrainArgs) -> Result<()> {
             "stopped_by": r.stopped_by.as_str(),
             "restarts": r.restart_distortions.len(),
             "coarse_start_cells": r.coarse_vectors,
+            "sample_draws": r.sample_draws,
             "seed": r.seed,
             "space": palette.layout().space.name(),
             "display": palette.layout().display.name(),

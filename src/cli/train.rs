@@ -7,11 +7,13 @@ use serde_json::json;
 
 use vqforge::codebook::Scaling;
 use vqforge::format;
-use vqforge::kmeans::{Seeding, TrainConfig, TrainEvent};
+use vqforge::kmeans::{Sampling, Seeding, TrainConfig, TrainEvent};
 use vqforge::load::{read_table, CsvOptions, Missing, RecordTable, TimeChoice};
 use vqforge::records::{train_tables, RecordError};
 
-use super::args::{KmeansArgs, MissingArg, ReadArgs, ScaleArg, SeedingArg, ShapeArgs, TrainArgs};
+use super::args::{
+    KmeansArgs, MissingArg, ReadArgs, SamplingArg, ScaleArg, SeedingArg, ShapeArgs, TrainArgs,
+};
 use super::output::{db, jnum, notices, num, print_json, print_pairs, print_table, secs};
 use super::{progress, same_file, usage};
 
@@ -73,7 +75,11 @@ pub fn train_config(size: usize, k: &KmeansArgs) -> Result<TrainConfig> {
         .restarts(k.restarts)
         .max_iterations(k.max_iter)
         .tolerance(k.tolerance)
-        .seed(k.seed))
+        .seed(k.seed)
+        .sampling(match k.sampling {
+            SamplingArg::Auto => Sampling::Auto,
+            SamplingArg::Never => Sampling::Never,
+        }))
 }
 
 /// Per-column error as JSON.
@@ -184,6 +190,7 @@ pub fn run(a: TrainArgs) -> Result<()> {
             "restarts": r.restart_distortions.len(),
             "best_restart": r.best_restart,
             "coarse_start_cells": r.coarse_vectors,
+            "sample_draws": r.sample_draws,
             "seeding": r.seeding.as_str(),
             "seed": r.seed,
             "columns": columns_json(&t.error),
