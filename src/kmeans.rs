@@ -1079,6 +1079,9 @@ struct BoundedAssign {
     lower: Vec<f64>,
     /// The codewords of the previous pass (empty before the first).
     last: Vec<f32>,
+    /// Neighbour lists of the previous pass's codewords, kept so that the
+    /// next pass re-sorts nearly sorted rows.
+    near: Option<Neighbours>,
 }
 
 /// The most codewords for which passes keep [`Neighbours`] (k² entries).
@@ -1140,6 +1143,27 @@ impl Neighbours {
             });
         }
         Neighbours { rows, k }
+    }
+
+    /// The same lists for moved codewords: every distance measured again,
+    /// each row re-sorted from its last order (nearly sorted when the
+    /// codewords moved little, which an adaptive sort takes in about one
+    /// sweep). Equal to [`Neighbours::new`]: the order is total.
+    fn refresh(&mut self, codewords: &[f32], d: usize) {
+        let k = self.k;
+        if k > 1 {
+            self.rows
+                .par_chunks_mut(k - 1)
+                .enumerate()
+                .for_each(|(a, row)| {
+                    let ca = &codewords[a * d..(a + 1) * d];
+                    for (gap, j) in row.iter_mut() {
+                        let j = *j as usize;
+                        *gap = exact_sq(ca, &codewords[j * d..(j + 1) * d]).sqrt();
+                    }
+                    row.sort_by(|x, y| x.0.total_cmp(&y.0).then(x.1.cmp(&y.1)));
+                });
+        }
     }
 
     fn row(&self, a: usize) -> &[(f64, u32)] {
@@ -1210,6 +1234,7 @@ impl BoundedAssign {
             upper: vec![f64::INFINITY; n],
             lower: vec![0.0; n],
             last: Vec::new(),
+            near: None,
         }
     }
 
@@ -1238,7 +1263,12 @@ impl BoundedAssign {
                         * (1.0 + rel)
                 })
                 .collect();
-            let near = (k <= NEIGHBOUR_LISTS_UP_TO).then(|| Neighbours::new(codewords, d));
+            match &mut self.near {
+                _ if k > NEIGHBOUR_LISTS_UP_TO => self.near = None,
+                Some(n) if n.k == k => n.refresh(codewords, d),
+                _ => self.near = Some(Neighbours::new(codewords, d)),
+            }
+            let near = self.near.as_ref();
             let half_gap: Vec<f64> = match &near {
                 Some(n) => (0..k).map(|a| n.half_gap(a)).collect(),
                 None => (0..k)
@@ -1892,6 +1922,32 @@ mod tests {
         // Below the threshold nothing is sampled.
         let small = train(&v, &TrainConfig::new(10).check().unwrap()).unwrap();
         assert_eq!(small.report.sample_draws, None);
+    }
+
+    #[test]
+    fn refreshed_neighbour_lists_equal_new_ones() {
+        // Codewords that move a little (nearly sorted rows), a lot, and onto
+        // each other (equal gaps, ordered by index).
+        let mut rng = SeededRng::new(33);
+        for &(d, k, step) in &[(3, 40, 0.01f32), (3, 40, 5.0), (16, 25, 0.1), (2, 30, 0.0)] {
+            let mut cw: Vec<f32> = (0..k * d).map(|_| rng.normal() as f32).collect();
+            let mut lists = Neighbours::new(&cw, d);
+            for round in 0..3 {
+                for (i, c) in cw.iter_mut().enumerate() {
+                    *c = if step == 0.0 && i % 3 == round {
+                        0.5
+                    } else {
+                        *c + step * rng.normal() as f32
+                    };
+                }
+                lists.refresh(&cw, d);
+                assert_eq!(
+                    lists.rows,
+                    Neighbours::new(&cw, d).rows,
+                    "d={d} k={k} step={step}"
+                );
+            }
+        }
     }
 
     #[test]

@@ -21,10 +21,10 @@ use serde_json::json;
 use vqforge::codebook::{Codebook, Meaning, TrainingFacts};
 use vqforge::colour::{ColourSpace, DisplayFormat};
 use vqforge::encode::Encoder;
+use vqforge::kmeans::{lloyd, LloydOptions};
 use vqforge::kmeans::{Seeding, StopReason};
 use vqforge::load::RgbaImage;
 use vqforge::palette::{AlphaMode, Dither, Palette, PixelLayout};
-use vqforge::kmeans::{lloyd, LloydOptions};
 use vqforge::vectors::VectorSet;
 
 fn read_f32(path: &str) -> Vec<f32> {
@@ -86,9 +86,17 @@ fn main() {
             };
             let started = Instant::now();
             let palette = Palette::from_codebook(&srgb_codebook(second)).expect("valid palette");
-            let indices = palette.map_image(&image, Dither::None).expect("whole image");
+            let indices = palette
+                .map_image(&image, Dither::None)
+                .expect("whole image");
             let seconds = started.elapsed().as_secs_f64();
-            report(&args[4], &indices, seconds, "distinct colours, then tree", threads);
+            report(
+                &args[4],
+                &indices,
+                seconds,
+                "distinct colours, then tree",
+                threads,
+            );
         }
         other => panic!("unknown mode {other:?}; {usage}"),
     }
