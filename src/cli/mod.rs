@@ -22,6 +22,36 @@ use clap::Parser;
 
 pub use args::{Cli, Command};
 
+/// The checked limits from the limit flags and, where the command has
+/// one, `--max-pixels` (defaults for those not given).
+pub fn limits(l: &args::LimitArgs, max_pixels: Option<u64>) -> Result<vqforge::limits::Limits> {
+    let mut out = vqforge::limits::Limits::default();
+    if let Some(n) = l.max_vectors {
+        out.max_vectors = n;
+    }
+    if let Some(n) = l.max_codewords {
+        out.max_codewords = n;
+    }
+    if let Some(n) = max_pixels {
+        out.max_pixels = n;
+    }
+    out.check()?;
+    Ok(out)
+}
+
+/// Refuses `--size` above `--max-codewords` (a usage error) before any
+/// input is read.
+/// `flag` names the flag that asked for `size` codewords.
+pub fn check_size(flag: &str, size: usize, limits: &vqforge::limits::Limits) -> Result<()> {
+    if size as u64 > limits.max_codewords {
+        return usage(format!(
+            "{flag} asks for {size} codewords, above the limit of {}; raise it with --max-codewords",
+            limits.max_codewords
+        ));
+    }
+    Ok(())
+}
+
 /// A usage error found by the command line itself (exit code 2).
 #[derive(Debug)]
 pub struct UsageError(pub String);
