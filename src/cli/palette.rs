@@ -480,7 +480,7 @@ pub fn train_images(a: TrainArgs) -> Result<()> {
     for p in &a.inputs {
         let image = load_image(p, a.colour.max_pixels)?;
         pixels += image.pixels.len() as u64;
-        limits.check_vectors("reading images", "the images together", pixels)?;
+        limits.check_vectors("reading images", "the training set", pixels)?;
         images.push(image);
     }
     let bar = progress::spinner("fitting palette");

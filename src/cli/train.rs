@@ -74,7 +74,7 @@ pub fn read_tables(inputs: &[std::path::PathBuf], opts: &CsvOptions) -> Result<V
             max_vectors: opts.max_vectors,
             ..Limits::default()
         };
-        limits.check_vectors("reading records", "the inputs together", vectors)?;
+        limits.check_vectors("reading records", "the training set", vectors)?;
     }
     Ok(tables)
 }
