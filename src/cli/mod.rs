@@ -112,16 +112,32 @@ pub fn run() -> Result<ExitCode> {
     Ok(ExitCode::SUCCESS)
 }
 
-/// True when `a` and `b` name the same existing file, also when spelt
-/// differently (`./x.csv` and `x.csv`, or through a symbolic link).
+/// True when `a` and `b` name the same file, also when spelt differently
+/// (`./x.csv` and `x.csv`, or through a symbolic link), whether or not the
+/// file exists yet (then their folders are compared, resolved, and their
+/// names).
 pub fn same_file(a: &Path, b: &Path) -> bool {
     if a == b {
         return true;
     }
-    match (std::fs::canonicalize(a), std::fs::canonicalize(b)) {
-        (Ok(a), Ok(b)) => a == b,
+    match (resolved(a), resolved(b)) {
+        (Some(a), Some(b)) => a == b,
         _ => false,
     }
+}
+
+/// The canonical path of `p`, or of its folder joined with its name when
+/// `p` does not exist yet.
+fn resolved(p: &Path) -> Option<std::path::PathBuf> {
+    if let Ok(full) = std::fs::canonicalize(p) {
+        return Some(full);
+    }
+    let name = p.file_name()?;
+    let folder = match p.parent() {
+        Some(f) if !f.as_os_str().is_empty() => f,
+        _ => Path::new("."),
+    };
+    Some(std::fs::canonicalize(folder).ok()?.join(name))
 }
 
 /// The whole error chain on one line: outer context first.

@@ -354,7 +354,7 @@ fn check_outputs(a: &PaletteArgs) -> Result<()> {
         }
         if let Some((other, _)) = outputs[..i]
             .iter()
-            .find(|(_, earlier)| *earlier == *out || same_file(earlier, out))
+            .find(|(_, earlier)| same_file(earlier, out))
         {
             return usage(format!(
                 "{other} and {flag} both name {}; give each output its own file",
