@@ -19,9 +19,10 @@
 //! the magic tag (is this our file, and which kind?), the version (can this
 //! build read the rest?), that the fixed parts and the header fit in the
 //! file, the checksum, the header itself, and finally that the header's
-//! numbers agree with the payload. Sizes are compared with checked
-//! arithmetic before anything is allocated, so a header claiming billions of
-//! codewords costs nothing.
+//! numbers agree with the payload and stay within the [`Limits`]. Sizes are
+//! compared with checked arithmetic before anything is allocated, and the
+//! file readers check the header against the file's length before reading
+//! the payload, so a header claiming billions of codewords costs nothing.
 //!
 //! ```
 //! use vqforge::codebook::{Codebook, Meaning, TrainingFacts};
