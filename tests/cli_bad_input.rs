@@ -12,10 +12,10 @@
 //! | CSV refused (empty, header only, ragged, non-numeric, NaN, inf, wrong delimiter, non-UTF-8 cell, Latin-1 header, UTF-16, quote never closed, codebook given as table, …) | 15 | here |
 //! | CSV accepted as the clean file (BOM, CRLF, quoted, `;`, tab, 2 MB line) | 6 | here |
 //! | codebooks: cut and bit-flipped in each of 21 fields, 10 resealed impossible values, 6 older cases, over the limit, as a stream | 61 | `bad_input_files.rs`, here |
-//! | streams: cut and bit-flipped in each of 14 fields, 12 resealed (index beyond k, padding, sizes, fingerprint …), other codebook ×3, over the limit | 46 | `bad_input_files.rs`, here |
+//! | streams: cut and bit-flipped in each of 14 fields, 12 resealed (index beyond k, padding, sizes, fingerprint …), other codebook ×3, over the limit ×2, 2 older cases, codebook given as stream ×2 | 49 | `bad_input_files.rs`, here |
 //! | images (100000 × 100000 header, 0 wide, 0 × 0, bit-flipped, truncated, GIF, table named .png, over --max-pixels, training set over --max-vectors) | 14 | here, `cli_palette.rs` |
 //! | flags (train, palette, curve, limits) | 43 | here, `cli_palette.rs`, `cli_curve.rs` |
-//! | output paths (equal to an input, folder, missing folder, two outputs one file, one of several failing) | 29 | here, `cli_palette.rs` |
+//! | output paths (equal to an input, folder, missing folder, two outputs one file, one of several failing, missing inputs) | 31 | here, `cli_palette.rs` |
 
 use std::process::Command;
 
