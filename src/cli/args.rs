@@ -168,6 +168,18 @@ impl ColourArgs {
     }
 }
 
+/// Limits that protect memory; inputs above them are refused before they are loaded.
+#[derive(Debug, Clone, Args)]
+pub struct LimitArgs {
+    /// Refuse a CSV table or index stream of more vectors than this [default: 100000000].
+    #[arg(long, value_name = "N")]
+    pub max_vectors: Option<u64>,
+
+    /// Refuse a codebook of more codewords than this, read or asked for with --size [default: 16777216].
+    #[arg(long, value_name = "N")]
+    pub max_codewords: Option<u64>,
+}
+
 /// Reading CSV records.
 #[derive(Debug, Clone, Args)]
 pub struct ReadArgs {
@@ -269,6 +281,9 @@ pub struct TrainArgs {
 
     #[command(flatten)]
     pub colour: ColourArgs,
+
+    #[command(flatten)]
+    pub limits: LimitArgs,
 
     /// Print one JSON object instead of a table.
     #[arg(long)]
@@ -379,6 +394,9 @@ pub struct CurveArgs {
     #[command(flatten)]
     pub colour: ColourArgs,
 
+    #[command(flatten)]
+    pub limits: LimitArgs,
+
     /// Print one JSON object instead of a table.
     #[arg(long)]
     pub json: bool,
@@ -409,6 +427,9 @@ pub struct EncodeArgs {
     #[command(flatten)]
     pub read: ReadArgs,
 
+    #[command(flatten)]
+    pub limits: LimitArgs,
+
     /// Print one JSON object instead of a table.
     #[arg(long)]
     pub json: bool,
@@ -428,6 +449,13 @@ pub struct DecodeArgs {
     #[arg(long, short, value_name = "FILE")]
     pub out: PathBuf,
 
+    /// Refuse a stream of an image with more pixels than this [default: 100000000].
+    #[arg(long, value_name = "N")]
+    pub max_pixels: Option<u64>,
+
+    #[command(flatten)]
+    pub limits: LimitArgs,
+
     /// Print one JSON object instead of a table.
     #[arg(long)]
     pub json: bool,
@@ -438,6 +466,9 @@ pub struct InfoArgs {
     /// A codebook or stream file.
     #[arg(value_name = "FILE")]
     pub file: PathBuf,
+
+    #[command(flatten)]
+    pub limits: LimitArgs,
 
     /// Print one JSON object instead of a table.
     #[arg(long)]
