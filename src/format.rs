@@ -206,6 +206,12 @@ fn restage(stage: &'static str, e: Error) -> Error {
     format_error(stage, e.kind().to_string())
 }
 
+/// A header as the file holds it.
+fn serialised_header(stage: &'static str, header: &impl Serialize) -> Result<Vec<u8>> {
+    postcard::to_allocvec(header)
+        .map_err(|e| format_error(stage, format!("the header cannot be serialised: {e}")))
+}
+
 /// Magic, version, header length and header, with room for the payload and CRC.
 fn begin_file(
     kind: FileKind,
@@ -213,8 +219,7 @@ fn begin_file(
     header: &impl Serialize,
     payload_capacity: usize,
 ) -> Result<Vec<u8>> {
-    let header_bytes = postcard::to_allocvec(header)
-        .map_err(|e| format_error(stage, format!("the header cannot be serialised: {e}")))?;
+    let header_bytes = serialised_header(stage, header)?;
     let header_len = u32::try_from(header_bytes.len()).map_err(|_| {
         format_error(
             stage,
@@ -674,8 +679,7 @@ pub fn stream_to_bytes(header: &StreamHeader, indices: &[u32]) -> Result<Vec<u8>
 pub fn stream_file_len(header: &StreamHeader) -> Result<u64> {
     const STAGE: &str = "sizing stream";
     check_stream_header(STAGE, header)?;
-    let header_bytes = postcard::to_allocvec(header)
-        .map_err(|e| format_error(STAGE, format!("the header cannot be serialised: {e}")))?;
+    let header_bytes = serialised_header(STAGE, header)?;
     let payload = packed_len(header.vectors, header.bits)
         .ok_or_else(|| format_error(STAGE, "the stream is too long to size".into()))?;
     Ok(FIXED_LEN as u64 + header_bytes.len() as u64 + payload)
