@@ -445,7 +445,7 @@ pub fn train_constrained(
             )),
         ));
     }
-    let unique = positive_weight(&vectors.deduplicated())?;
+    let unique = positive_weight(vectors.deduplicated())?;
     let distinct = unique.len();
     let total_weight = unique.total_weight();
     let mut notices = Vec::new();
@@ -686,12 +686,12 @@ fn distinct_codewords(codewords: &[f32], dim: usize) -> Vec<f32> {
 
 /// Drops rows of weight 0 (they cannot pull a codeword) and refuses a set
 /// whose weights are all 0.
-fn positive_weight(v: &VectorSet) -> Result<VectorSet> {
+fn positive_weight(v: VectorSet) -> Result<VectorSet> {
     let Some(w) = v.weights() else {
-        return Ok(v.clone());
+        return Ok(v);
     };
     if w.iter().all(|&x| x > 0.0) {
-        return Ok(v.clone());
+        return Ok(v);
     }
     let mut data = Vec::new();
     let mut weights = Vec::new();

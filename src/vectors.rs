@@ -150,7 +150,11 @@ impl VectorSet {
         let order = self.sorted_rows();
         // (first index, summed weight) per run of equal rows; the weights
         // are summed in index order, as a pass in appearance order would.
-        let mut firsts: Vec<(u32, f64)> = Vec::new();
+        let runs = 1 + order
+            .windows(2)
+            .filter(|w| !self.row_bits(w[0]).eq(self.row_bits(w[1])))
+            .count();
+        let mut firsts: Vec<(u32, f64)> = Vec::with_capacity(runs.min(order.len()));
         for &row in &order {
             let w = self.weight(row as usize);
             match firsts.last_mut() {
