@@ -168,10 +168,14 @@ impl VectorSet {
         for &(first, _) in &firsts {
             data.extend(self.row(first as usize).iter().map(|v| v + 0.0));
         }
+        // Collected afresh: an in-place collect would keep the pairs'
+        // twice-as-large buffer.
+        let weights = firsts.iter().map(|&(_, w)| w).collect();
+        drop(firsts);
         VectorSet {
             dimension: d,
             data,
-            weights: Some(firsts.into_iter().map(|(_, w)| w).collect()),
+            weights: Some(weights),
         }
     }
 
@@ -261,9 +265,10 @@ impl VectorSet {
         let mut width = (span / (max_cells as f64).powf(1.0 / d as f64)).max(finest);
         let mut exponent = 2.0f64;
         let mut last: Option<(f64, usize)> = None;
-        // The narrowest fitting width tried, and its sorted keys.
+        // The narrowest fitting width tried, and whether `keyed` holds its
+        // keys (otherwise they are binned again at the end: one buffer).
         let mut fitting: Option<f64> = None;
-        let mut best: Vec<(u64, u32)> = Vec::new();
+        let mut holds_fitting = false;
         for _ in 0..8 {
             let occupied = bin(width, &mut keyed);
             if let Some((w0, o0)) = last {
@@ -274,9 +279,10 @@ impl VectorSet {
             }
             last = Some((width, occupied));
             let fits = occupied <= max_cells;
+            holds_fitting = false;
             if fits && fitting.is_none_or(|w| width < w) {
                 fitting = Some(width);
-                std::mem::swap(&mut best, &mut keyed);
+                holds_fitting = true;
             }
             if fits && (occupied * 2 >= max_cells || width <= finest) {
                 break;
@@ -285,16 +291,19 @@ impl VectorSet {
             let step = aim.powf(-1.0 / exponent).clamp(0.25, 4.0);
             width = (width * step).max(finest);
         }
-        if fitting.is_none() {
+        match fitting {
             // Still too many cells after the tries: widen until it fits.
-            loop {
+            None => loop {
                 width *= 2.0;
-                if bin(width, &mut best) <= max_cells {
+                if bin(width, &mut keyed) <= max_cells {
                     break;
                 }
+            },
+            Some(w) if !holds_fitting => {
+                bin(w, &mut keyed);
             }
+            Some(_) => {}
         }
-        let keyed = best;
         let mut data = Vec::new();
         let mut weights = Vec::new();
         let mut sums = vec![0.0f64; d];
