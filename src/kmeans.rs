@@ -7,6 +7,8 @@
 //! `f64`) are reduced in chunk order, so results are bit-identical for any
 //! number of threads.
 
+use std::borrow::Cow;
+
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
@@ -445,7 +447,7 @@ pub fn train_constrained(
             )),
         ));
     }
-    let unique = positive_weight(vectors.deduplicated())?;
+    let unique = positive_weight(vectors.distinct())?;
     let distinct = unique.len();
     let total_weight = unique.total_weight();
     let mut notices = Vec::new();
@@ -686,7 +688,7 @@ fn distinct_codewords(codewords: &[f32], dim: usize) -> Vec<f32> {
 
 /// Drops rows of weight 0 (they cannot pull a codeword) and refuses a set
 /// whose weights are all 0.
-fn positive_weight(v: VectorSet) -> Result<VectorSet> {
+fn positive_weight(v: Cow<'_, VectorSet>) -> Result<Cow<'_, VectorSet>> {
     let Some(w) = v.weights() else {
         return Ok(v);
     };
@@ -704,7 +706,9 @@ fn positive_weight(v: VectorSet) -> Result<VectorSet> {
     if weights.is_empty() {
         return Err(Error::new("training", ErrorKind::EmptyInput));
     }
-    VectorSet::new(v.dimension(), data)?.with_weights(weights)
+    Ok(Cow::Owned(
+        VectorSet::new(v.dimension(), data)?.with_weights(weights)?,
+    ))
 }
 
 /// k distinct vectors drawn without replacement with probability ∝ weight

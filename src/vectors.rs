@@ -1,6 +1,8 @@
 //! `VectorSet`: contiguous `f32` rows of one runtime dimension, with optional
 //! per-row weights. Everything downstream of loading works on this.
 
+use std::borrow::Cow;
+
 use rayon::prelude::*;
 
 use crate::error::{Error, ErrorKind, Position, Result};
@@ -146,8 +148,29 @@ impl VectorSet {
     /// Sorts row indices rather than hashing rows, which keeps the extra
     /// memory to a few bytes per row.
     pub fn deduplicated(&self) -> VectorSet {
-        let d = self.dimension;
+        self.merged(self.sorted_rows())
+    }
+
+    /// [`VectorSet::deduplicated`], borrowing `self` when it already is its
+    /// own de-duplicated form (weighted, every row distinct, no −0): no
+    /// copy of an input that was de-duplicated before (a photo's colours,
+    /// records without repeats).
+    pub fn distinct(&self) -> Cow<'_, VectorSet> {
         let order = self.sorted_rows();
+        let repeats = order
+            .windows(2)
+            .any(|w| self.row_bits(w[0]).eq(self.row_bits(w[1])));
+        let negative_zero = self.data.iter().any(|v| v.to_bits() == (-0.0f32).to_bits());
+        if self.weights.is_some() && !repeats && !negative_zero {
+            Cow::Borrowed(self)
+        } else {
+            Cow::Owned(self.merged(order))
+        }
+    }
+
+    /// The de-duplicated form, given the rows in [`VectorSet::sorted_rows`] order.
+    fn merged(&self, order: Vec<u32>) -> VectorSet {
+        let d = self.dimension;
         // (first index, summed weight) per run of equal rows; the weights
         // are summed in index order, as a pass in appearance order would.
         let runs = 1 + order
@@ -333,6 +356,30 @@ impl VectorSet {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn distinct_borrows_only_what_needs_no_merging() {
+        let weighted = |data: Vec<f32>| {
+            let n = data.len();
+            VectorSet::new(1, data)
+                .unwrap()
+                .with_weights(vec![2.0; n])
+                .unwrap()
+        };
+        let plain = weighted(vec![3.0, 1.0, 2.0]);
+        assert!(matches!(plain.distinct(), Cow::Borrowed(_)));
+        assert_eq!(*plain.distinct(), plain.deduplicated());
+        // A repeat, a −0 (merged with +0 and written as +0), no weights:
+        // each gives the merged copy.
+        for v in [
+            weighted(vec![3.0, 1.0, 3.0]),
+            weighted(vec![-0.0, 1.0]),
+            VectorSet::new(1, vec![3.0, 1.0]).unwrap(),
+        ] {
+            assert!(matches!(v.distinct(), Cow::Owned(_)));
+            assert_eq!(*v.distinct(), v.deduplicated());
+        }
+    }
 
     #[test]
     fn a_sample_draws_in_proportion_to_weight() {
