@@ -69,7 +69,7 @@ fn facts() -> TrainingFacts {
 }
 
 proptest! {
-    #![proptest_config(config(48))]
+    #![proptest_config(config(128))]
 
     /// Packing then unpacking gives the indices back, at every width from 1
     /// to 16 bits, in exactly ⌈count × bits / 8⌉ bytes (the layout in
@@ -207,7 +207,7 @@ fn lloyd_inputs() -> impl Strategy<Value = (usize, Vec<f32>, Option<Vec<f64>>, u
 }
 
 proptest! {
-    #![proptest_config(config(64))]
+    #![proptest_config(config(128))]
 
     /// The distortion recorded after each assignment step never rises, and
     /// the final distortion is no larger than the last recorded one. This
