@@ -205,6 +205,25 @@ pub fn write_atomic(path: impl AsRef<Path>, bytes: &[u8]) -> Result<()> {
     file.commit()
 }
 
+/// Replaces several files together: every temporary file is created and
+/// written before the first is renamed, so a missing folder, a folder given
+/// as a target or a failed write leaves every target as it was. (A rename
+/// that fails after an earlier one succeeded cannot be undone; within one
+/// file system that takes something like the disk turning read-only.)
+pub fn write_all_atomic(files: &[(&Path, &[u8])]) -> Result<()> {
+    let mut open = Vec::with_capacity(files.len());
+    for (path, bytes) in files {
+        let mut file = AtomicFile::create(path)?;
+        file.write_all(bytes).map_err(|e| file.error(e))?;
+        file.flush().map_err(|e| file.error(e))?;
+        open.push(file);
+    }
+    for file in open {
+        file.commit()?;
+    }
+    Ok(())
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -257,6 +276,24 @@ mod tests {
         }
         assert_eq!(fs::read(&path).unwrap(), b"old");
         assert_eq!(names_in(dir.path()), ["keep.txt"]);
+    }
+
+    #[test]
+    fn several_files_are_written_together_or_not_at_all() {
+        let dir = tempfile::tempdir().unwrap();
+        let a = dir.path().join("a.png");
+        let b = dir.path().join("b.h");
+        fs::write(&a, b"old a").unwrap();
+        let missing = dir.path().join("no-such").join("c.bin");
+        let e = write_all_atomic(&[(&a, b"new a"), (&b, b"new b"), (&missing, b"c")]).unwrap_err();
+        assert_eq!(e.position().file, Some(missing.display().to_string()));
+        assert_eq!(fs::read(&a).unwrap(), b"old a");
+        assert_eq!(names_in(dir.path()), ["a.png"]);
+
+        write_all_atomic(&[(&a, b"new a"), (&b, b"new b")]).unwrap();
+        assert_eq!(fs::read(&a).unwrap(), b"new a");
+        assert_eq!(fs::read(&b).unwrap(), b"new b");
+        assert_eq!(names_in(dir.path()), ["a.png", "b.h"]);
     }
 
     #[test]

@@ -50,11 +50,12 @@ pub enum SearchMethod {
 
 /// The largest dimension at which [`SearchMethod::Auto`] answers batches
 /// with the tree. Measured single-threaded on 100 000 standard normal
-/// queries, k = 256 (benches/nearest.rs, in one run each): the tree and the
-/// blocked scan take about the same time at d = 3 (38.8 vs 39.1 ms), the
-/// blocked scan 0.85× the tree's time at d = 4, 0.51× at d = 5 and 0.23×
-/// at d = 8. The tree prunes better on clustered data such as photo
-/// colours, so it keeps d = 3.
+/// queries, k = 256 (benches/nearest.rs, one run, AVX2 kernel), the blocked
+/// scan takes 0.78× the tree's time at d = 3, 0.54× at d = 4, 0.36× at
+/// d = 5 and 0.13× at d = 8 (with the baseline x86-64 kernel: 1.0×, 0.85×,
+/// 0.51×, 0.23×). On photo colours (benches/palette.rs, 2 threads, one run
+/// each) the end-to-end palette took 8.2 s with the tree at d = 3 and 8.9 s
+/// with the blocked scan, so d = 3 keeps the tree.
 pub const BATCH_TREE_MAX_DIMENSION: usize = 3;
 
 /// Rows per parallel work unit. Fixed, so the split of work (and anything
@@ -418,6 +419,16 @@ impl Encoder {
             SearchMethod::KdTree
         } else {
             SearchMethod::Scan
+        }
+    }
+
+    /// The method batches use ([`Encoder::nearest_batch`]; never `Auto`):
+    /// `Scan` means the blocked kernel.
+    pub fn batch_method(&self) -> SearchMethod {
+        if self.blocked.is_some() {
+            SearchMethod::Scan
+        } else {
+            SearchMethod::KdTree
         }
     }
 

@@ -19,9 +19,10 @@
 //! the magic tag (is this our file, and which kind?), the version (can this
 //! build read the rest?), that the fixed parts and the header fit in the
 //! file, the checksum, the header itself, and finally that the header's
-//! numbers agree with the payload. Sizes are compared with checked
-//! arithmetic before anything is allocated, so a header claiming billions of
-//! codewords costs nothing.
+//! numbers agree with the payload and stay within the [`Limits`]. Sizes are
+//! compared with checked arithmetic before anything is allocated, and the
+//! file readers check the header against the file's length before reading
+//! the payload, so a header claiming billions of codewords costs nothing.
 //!
 //! ```
 //! use vqforge::codebook::{Codebook, Meaning, TrainingFacts};
@@ -59,6 +60,7 @@ use serde::{Deserialize, Serialize};
 use crate::atomic::write_atomic;
 use crate::codebook::{bits_for_size, Codebook, Meaning, TimeAxis, TrainingFacts};
 use crate::error::{Error, ErrorKind, Result};
+use crate::limits::{self, Limits};
 use crate::pack::{packed_len, unpack_indices, BitPacker};
 
 /// Magic tag opening every codebook file.
@@ -204,6 +206,12 @@ fn restage(stage: &'static str, e: Error) -> Error {
     format_error(stage, e.kind().to_string())
 }
 
+/// A header as the file holds it.
+fn serialised_header(stage: &'static str, header: &impl Serialize) -> Result<Vec<u8>> {
+    postcard::to_allocvec(header)
+        .map_err(|e| format_error(stage, format!("the header cannot be serialised: {e}")))
+}
+
 /// Magic, version, header length and header, with room for the payload and CRC.
 fn begin_file(
     kind: FileKind,
@@ -211,8 +219,7 @@ fn begin_file(
     header: &impl Serialize,
     payload_capacity: usize,
 ) -> Result<Vec<u8>> {
-    let header_bytes = postcard::to_allocvec(header)
-        .map_err(|e| format_error(stage, format!("the header cannot be serialised: {e}")))?;
+    let header_bytes = serialised_header(stage, header)?;
     let header_len = u32::try_from(header_bytes.len()).map_err(|_| {
         format_error(
             stage,
@@ -240,17 +247,12 @@ struct Parts<'a> {
     payload: &'a [u8],
 }
 
-/// Checks magic, version, lengths and checksum, and splits off the header
-/// and payload. `payload_len` tells, from header bytes that may be corrupt,
-/// how long the payload should be; it only improves the checksum message.
-fn open_file<'a>(
-    bytes: &'a [u8],
-    kind: FileKind,
-    payload_len: fn(&[u8]) -> Option<u64>,
-) -> Result<Parts<'a>> {
+/// Checks magic, version and the fixed lengths of a file of `len` bytes
+/// whose first bytes are `head` (all of them, or at least [`PREFIX_LEN`]),
+/// and returns the header length.
+fn check_prefix(head: &[u8], len: u64, kind: FileKind) -> Result<u32> {
     let stage = kind.reading();
     let fail = |message: String| Err(format_error(stage, message));
-    let len = bytes.len();
     let truncated = || {
         format!(
             "truncated file: {len} bytes is shorter than the {FIXED_LEN} bytes every {} file has",
@@ -259,16 +261,16 @@ fn open_file<'a>(
     };
 
     let magic = kind.magic();
-    if len < magic.len() {
-        if len > 0 && magic.starts_with(bytes) {
+    if len < magic.len() as u64 {
+        if len > 0 && magic.starts_with(head) {
             return fail(truncated());
         }
         if len == 0 {
             return fail("the file is empty".into());
         }
     }
-    if !bytes.starts_with(&magic) {
-        if bytes.starts_with(&kind.other().magic()) {
+    if !head.starts_with(&magic) {
+        if head.starts_with(&kind.other().magic()) {
             return fail(format!(
                 "this is a vqforge {}, not a {}",
                 kind.other().noun(),
@@ -281,24 +283,59 @@ fn open_file<'a>(
     if len < 10 {
         return fail(truncated());
     }
-    let version = u16::from_le_bytes([bytes[8], bytes[9]]);
+    let version = u16::from_le_bytes([head[8], head[9]]);
     if version != FORMAT_VERSION {
         return fail(format!(
             "unsupported format version {version}: this build reads version {FORMAT_VERSION}"
         ));
     }
 
-    if len < FIXED_LEN {
+    if len < FIXED_LEN as u64 {
         return fail(truncated());
     }
-    let header_len = u32::from_le_bytes([bytes[10], bytes[11], bytes[12], bytes[13]]);
-    let room = len - FIXED_LEN;
-    if u64::from(header_len) > room as u64 {
+    let header_len = u32::from_le_bytes([head[10], head[11], head[12], head[13]]);
+    let room = len - FIXED_LEN as u64;
+    if u64::from(header_len) > room {
         return fail(format!(
             "truncated file: the header length says {header_len} bytes, \
              but only {room} bytes lie between the fixed parts"
         ));
     }
+    Ok(header_len)
+}
+
+/// The checksum error of a file of `len` bytes, saying so when `header`
+/// (which may be corrupt) describes a file of another length.
+fn checksum_error(
+    stage: &'static str,
+    len: u64,
+    header: &[u8],
+    payload_len: fn(&[u8]) -> Option<u64>,
+) -> Error {
+    let described =
+        payload_len(header).and_then(|p| p.checked_add((FIXED_LEN + header.len()) as u64));
+    match described {
+        Some(total) if total != len => format_error(
+            stage,
+            format!(
+                "checksum mismatch: the file is corrupted or truncated \
+                 (it has {len} bytes, its header describes {total})"
+            ),
+        ),
+        _ => format_error(stage, "checksum mismatch: the file is corrupted".into()),
+    }
+}
+
+/// Checks magic, version, lengths and checksum, and splits off the header
+/// and payload. `payload_len` tells, from header bytes that may be corrupt,
+/// how long the payload should be; it only improves the checksum message.
+fn open_file<'a>(
+    bytes: &'a [u8],
+    kind: FileKind,
+    payload_len: fn(&[u8]) -> Option<u64>,
+) -> Result<Parts<'a>> {
+    let len = bytes.len();
+    let header_len = check_prefix(bytes, len as u64, kind)?;
     let header_end = PREFIX_LEN + header_len as usize;
     let body_end = len - CRC_LEN;
     let header = &bytes[PREFIX_LEN..header_end];
@@ -310,21 +347,90 @@ fn open_file<'a>(
         bytes[body_end + 3],
     ]);
     if crc32fast::hash(&bytes[..body_end]) != stored {
-        let described = payload_len(header)
-            .and_then(|p| p.checked_add(FIXED_LEN as u64 + u64::from(header_len)));
-        return match described {
-            Some(total) if total != len as u64 => fail(format!(
-                "checksum mismatch: the file is corrupted or truncated \
-                 (it has {len} bytes, its header describes {total})"
-            )),
-            _ => fail("checksum mismatch: the file is corrupted".into()),
-        };
+        return Err(checksum_error(
+            kind.reading(),
+            len as u64,
+            header,
+            payload_len,
+        ));
     }
 
     Ok(Parts {
         header,
         payload: &bytes[header_end..body_end],
     })
+}
+
+/// Longest header the file readers accept. Headers hold column names and
+/// scales: a table of a million columns with 40-byte names stays below it.
+const MAX_HEADER_LEN: u32 = 64 << 20;
+
+/// Reads the file at `path` in two steps, so that nothing larger than the
+/// header is held before the header's numbers are checked: first the
+/// prefix and the header, with the checksum computed while streaming
+/// through the rest; then `header_ok` with the header and the payload's
+/// length (it parses the header and checks it against the payload length
+/// and the limits); only then the whole file. Errors name no file.
+fn read_file_checked(
+    path: &Path,
+    kind: FileKind,
+    payload_len: fn(&[u8]) -> Option<u64>,
+    header_ok: &dyn Fn(&[u8], u64) -> Result<()>,
+) -> Result<Vec<u8>> {
+    use std::io::{Read, Seek};
+    let stage = kind.reading();
+    let io = |e: std::io::Error| Error::new(stage, ErrorKind::Io(e));
+    let mut file = std::fs::File::open(path).map_err(io)?;
+    let len = file.metadata().map_err(io)?.len();
+    let mut head = Vec::with_capacity(PREFIX_LEN);
+    (&mut file)
+        .take(PREFIX_LEN as u64)
+        .read_to_end(&mut head)
+        .map_err(io)?;
+    let header_len = check_prefix(&head, len, kind)?;
+    if header_len > MAX_HEADER_LEN {
+        return Err(format_error(
+            stage,
+            format!(
+                "the header length says {header_len} bytes, more than the {MAX_HEADER_LEN} \
+                 bytes any {} header takes; the file is corrupted",
+                kind.noun()
+            ),
+        ));
+    }
+    let mut header = vec![0; header_len as usize];
+    file.read_exact(&mut header).map_err(io)?;
+    let payload = len - (FIXED_LEN as u64 + u64::from(header_len));
+    let mut crc = crc32fast::Hasher::new();
+    crc.update(&head);
+    crc.update(&header);
+    let mut rest = (&mut file).take(payload);
+    let mut buffer = vec![0; 1 << 16];
+    loop {
+        let n = rest.read(&mut buffer).map_err(io)?;
+        if n == 0 {
+            break;
+        }
+        crc.update(&buffer[..n]);
+    }
+    let mut stored = [0; CRC_LEN];
+    file.read_exact(&mut stored).map_err(io)?;
+    if crc.finalize() != u32::from_le_bytes(stored) {
+        return Err(checksum_error(stage, len, &header, payload_len));
+    }
+    header_ok(&header, payload)?;
+    let size = usize::try_from(len).map_err(|_| {
+        Error::new(
+            stage,
+            ErrorKind::Limit(format!(
+                "the file has {len} bytes, more than this computer can address"
+            )),
+        )
+    })?;
+    let mut bytes = limits::vec_with_capacity(size, stage, "the file")?;
+    file.rewind().map_err(io)?;
+    file.read_to_end(&mut bytes).map_err(io)?;
+    Ok(bytes)
 }
 
 /// Deserialises a header that must use every one of its bytes.
@@ -366,45 +472,62 @@ pub fn codebook_to_bytes(codebook: &Codebook) -> Result<Vec<u8>> {
     Ok(end_file(out))
 }
 
-/// Reads a codebook from its file's bytes, refusing anything malformed,
-/// corrupted, truncated or inconsistent (see the module doc for the order).
-pub fn codebook_from_bytes(bytes: &[u8]) -> Result<Codebook> {
-    const STAGE: &str = "reading codebook";
-    let parts = open_file(bytes, FileKind::Codebook, |header| {
-        let h: BookHeader = postcard::from_bytes(header).ok()?;
-        book_payload_len(h.size, h.dimension)
-    })?;
-    let header: BookHeader = parse_header(STAGE, parts.header)?;
-    let fail = |message: String| Err(format_error(STAGE, message));
+/// The payload length a codebook header (which may be corrupt) describes.
+fn described_book_payload(header: &[u8]) -> Option<u64> {
+    let h: BookHeader = postcard::from_bytes(header).ok()?;
+    book_payload_len(h.size, h.dimension)
+}
 
+/// Checks a codebook header against its payload's length and the limits.
+fn check_book_header(header: &BookHeader, payload_len: u64, limits: &Limits) -> Result<()> {
+    const STAGE: &str = "reading codebook";
+    let fail = |message: String| Err(format_error(STAGE, message));
     if header.dimension == 0 {
         return fail("the header says the codewords have 0 components".into());
     }
     if header.size == 0 {
         return fail("the header says the codebook has 0 codewords".into());
     }
-    let payload = parts.payload;
     match book_payload_len(header.size, header.dimension) {
-        Some(n) if n == payload.len() as u64 => {}
+        Some(n) if n == payload_len => {}
         described => {
             let described =
                 described.map_or_else(|| "more than 2^64".to_string(), |n| n.to_string());
             return fail(format!(
                 "the header describes {} codewords of dimension {} ({described} bytes), \
-                 but the payload has {} bytes",
-                header.size,
-                header.dimension,
-                payload.len()
+                 but the payload has {payload_len} bytes",
+                header.size, header.dimension,
             ));
         }
     }
+    limits.check_codewords(STAGE, "the codebook", header.size)
+}
+
+/// Reads a codebook from its file's bytes, refusing anything malformed,
+/// corrupted, truncated or inconsistent (see the module doc for the order),
+/// within the default [`Limits`].
+pub fn codebook_from_bytes(bytes: &[u8]) -> Result<Codebook> {
+    codebook_from_bytes_with(bytes, &Limits::default())
+}
+
+/// [`codebook_from_bytes`] within `limits`: a codebook of more than
+/// [`Limits::max_codewords`] codewords is an [`ErrorKind::Limit`] error.
+pub fn codebook_from_bytes_with(bytes: &[u8], limits: &Limits) -> Result<Codebook> {
+    const STAGE: &str = "reading codebook";
+    let parts = open_file(bytes, FileKind::Codebook, described_book_payload)?;
+    let header: BookHeader = parse_header(STAGE, parts.header)?;
+    let payload = parts.payload;
+    check_book_header(&header, payload.len() as u64, limits)?;
     // The payload length now vouches for both numbers fitting in memory.
     let dimension = usize::try_from(header.dimension)
         .map_err(|_| format_error(STAGE, "the dimension does not fit in memory".into()))?;
-    let codewords: Vec<f32> = payload
-        .chunks_exact(4)
-        .map(|b| f32::from_le_bytes([b[0], b[1], b[2], b[3]]))
-        .collect();
+    let mut codewords: Vec<f32> =
+        limits::vec_with_capacity(payload.len() / 4, STAGE, "the codewords")?;
+    codewords.extend(
+        payload
+            .chunks_exact(4)
+            .map(|b| f32::from_le_bytes([b[0], b[1], b[2], b[3]])),
+    );
     let codebook = Codebook {
         dimension,
         codewords,
@@ -422,13 +545,44 @@ pub fn write_codebook(path: impl AsRef<Path>, codebook: &Codebook) -> Result<()>
     write_atomic(path, &bytes)
 }
 
-/// Reads and checks the codebook file at `path`. Errors name the file.
+/// Reads and checks the codebook file at `path` within the default
+/// [`Limits`]. Errors name the file.
 pub fn read_codebook(path: impl AsRef<Path>) -> Result<Codebook> {
-    let path = path.as_ref();
-    let name = || path.display().to_string();
-    let bytes = std::fs::read(path)
-        .map_err(|e| Error::new("reading codebook", ErrorKind::Io(e)).in_file(name()))?;
-    codebook_from_bytes(&bytes).map_err(|e| e.in_file(name()))
+    read_codebook_with(path, &Limits::default())
+}
+
+/// [`read_codebook`] within `limits`. The header is read and checked
+/// against the file's length and the limits before the codewords are, so
+/// a header claiming billions of codewords costs only its own bytes.
+pub fn read_codebook_with(path: impl AsRef<Path>, limits: &Limits) -> Result<Codebook> {
+    read_with(
+        path.as_ref(),
+        FileKind::Codebook,
+        described_book_payload,
+        check_book_header,
+        codebook_from_bytes_with,
+        limits,
+    )
+}
+
+/// Reads the file at `path` with [`read_file_checked`], checking its
+/// header of type `H` with `check` before the payload is read, then
+/// decodes it with `decode`. Errors name the file.
+fn read_with<H: serde::de::DeserializeOwned, T>(
+    path: &Path,
+    kind: FileKind,
+    described: fn(&[u8]) -> Option<u64>,
+    check: fn(&H, u64, &Limits) -> Result<()>,
+    decode: fn(&[u8], &Limits) -> Result<T>,
+    limits: &Limits,
+) -> Result<T> {
+    let header_ok = |header: &[u8], payload_len: u64| {
+        let header: H = parse_header(kind.reading(), header)?;
+        check(&header, payload_len, limits)
+    };
+    read_file_checked(path, kind, described, &header_ok)
+        .and_then(|bytes| decode(&bytes, limits))
+        .map_err(|e| e.in_file(path.display().to_string()))
 }
 
 /// A 32-bit fingerprint of a codebook: the CRC field of its file bytes.
@@ -525,27 +679,25 @@ pub fn stream_to_bytes(header: &StreamHeader, indices: &[u32]) -> Result<Vec<u8>
 pub fn stream_file_len(header: &StreamHeader) -> Result<u64> {
     const STAGE: &str = "sizing stream";
     check_stream_header(STAGE, header)?;
-    let header_bytes = postcard::to_allocvec(header)
-        .map_err(|e| format_error(STAGE, format!("the header cannot be serialised: {e}")))?;
+    let header_bytes = serialised_header(STAGE, header)?;
     let payload = packed_len(header.vectors, header.bits)
         .ok_or_else(|| format_error(STAGE, "the stream is too long to size".into()))?;
     Ok(FIXED_LEN as u64 + header_bytes.len() as u64 + payload)
 }
 
-/// Reads a stream from its file's bytes, refusing anything malformed,
-/// corrupted, truncated or inconsistent, including any index not below the
-/// header's codebook size.
-pub fn stream_from_bytes(bytes: &[u8]) -> Result<(StreamHeader, Vec<u32>)> {
+/// The payload length a stream header (which may be corrupt) describes.
+fn described_stream_payload(header: &[u8]) -> Option<u64> {
+    let h: StreamHeader = postcard::from_bytes(header).ok()?;
+    packed_len(h.vectors, h.bits)
+}
+
+/// Checks a stream header's numbers, against its payload's length and the
+/// limits too.
+fn check_stream_payload(header: &StreamHeader, payload_len: u64, limits: &Limits) -> Result<()> {
     const STAGE: &str = "reading stream";
-    let parts = open_file(bytes, FileKind::Stream, |header| {
-        let h: StreamHeader = postcard::from_bytes(header).ok()?;
-        packed_len(h.vectors, h.bits)
-    })?;
-    let header: StreamHeader = parse_header(STAGE, parts.header)?;
-    check_stream_header(STAGE, &header)?;
-    let payload = parts.payload;
+    check_stream_header(STAGE, header)?;
     match packed_len(header.vectors, header.bits) {
-        Some(n) if n == payload.len() as u64 => {}
+        Some(n) if n == payload_len => {}
         described => {
             let described =
                 described.map_or_else(|| "more than 2^64".to_string(), |n| n.to_string());
@@ -553,14 +705,30 @@ pub fn stream_from_bytes(bytes: &[u8]) -> Result<(StreamHeader, Vec<u32>)> {
                 STAGE,
                 format!(
                     "the header describes {} indices of {} bits ({described} bytes), \
-                     but the payload has {} bytes",
-                    header.vectors,
-                    header.bits,
-                    payload.len()
+                     but the payload has {payload_len} bytes",
+                    header.vectors, header.bits,
                 ),
             ));
         }
     }
+    limits.check_vectors(STAGE, "the stream", header.vectors)
+}
+
+/// Reads a stream from its file's bytes, refusing anything malformed,
+/// corrupted, truncated or inconsistent, including any index not below the
+/// header's codebook size, within the default [`Limits`].
+pub fn stream_from_bytes(bytes: &[u8]) -> Result<(StreamHeader, Vec<u32>)> {
+    stream_from_bytes_with(bytes, &Limits::default())
+}
+
+/// [`stream_from_bytes`] within `limits`: a stream of more than
+/// [`Limits::max_vectors`] indices is an [`ErrorKind::Limit`] error.
+pub fn stream_from_bytes_with(bytes: &[u8], limits: &Limits) -> Result<(StreamHeader, Vec<u32>)> {
+    const STAGE: &str = "reading stream";
+    let parts = open_file(bytes, FileKind::Stream, described_stream_payload)?;
+    let header: StreamHeader = parse_header(STAGE, parts.header)?;
+    let payload = parts.payload;
+    check_stream_payload(&header, payload.len() as u64, limits)?;
     let count = usize::try_from(header.vectors)
         .map_err(|_| format_error(STAGE, "the index count does not fit in memory".into()))?;
     let indices = unpack_indices(payload, count, header.bits).map_err(|e| restage(STAGE, e))?;
@@ -584,13 +752,40 @@ pub fn write_stream(path: impl AsRef<Path>, header: &StreamHeader, indices: &[u3
     write_atomic(path, &bytes)
 }
 
-/// Reads and checks the stream file at `path`. Errors name the file.
+/// Reads and checks the stream file at `path` within the default
+/// [`Limits`]. Errors name the file.
 pub fn read_stream(path: impl AsRef<Path>) -> Result<(StreamHeader, Vec<u32>)> {
+    read_stream_with(path, &Limits::default())
+}
+
+/// [`read_stream`] within `limits`. The header is read and checked against
+/// the file's length and the limits before the indices are.
+pub fn read_stream_with(
+    path: impl AsRef<Path>,
+    limits: &Limits,
+) -> Result<(StreamHeader, Vec<u32>)> {
+    read_with(
+        path.as_ref(),
+        FileKind::Stream,
+        described_stream_payload,
+        check_stream_payload,
+        stream_from_bytes_with,
+        limits,
+    )
+}
+
+/// Which vqforge file the file at `path` is, from its first eight bytes
+/// (nothing else is checked); `None` for anything else.
+pub fn detect_file_kind(path: impl AsRef<Path>) -> Result<Option<FileKind>> {
+    use std::io::Read;
     let path = path.as_ref();
-    let name = || path.display().to_string();
-    let bytes = std::fs::read(path)
-        .map_err(|e| Error::new("reading stream", ErrorKind::Io(e)).in_file(name()))?;
-    stream_from_bytes(&bytes).map_err(|e| e.in_file(name()))
+    let mut head = Vec::with_capacity(8);
+    std::fs::File::open(path)
+        .and_then(|f| f.take(8).read_to_end(&mut head))
+        .map_err(|e| {
+            Error::new("reading file", ErrorKind::Io(e)).in_file(path.display().to_string())
+        })?;
+    Ok(detect_kind(&head))
 }
 
 /// Checks that a stream belongs with `codebook`: same size, dimension and
@@ -943,6 +1138,94 @@ mod tests {
         assert!(e.contains("truncated file: the header length says"), "{e}");
         let e = message(codebook_from_bytes(&[]).unwrap_err());
         assert_eq!(e, "reading codebook: the file is empty");
+    }
+
+    /// The message of reading `bytes` from a file, without the file name.
+    fn file_message(dir: &Path, bytes: &[u8], kind: FileKind, limits: &Limits) -> Option<String> {
+        let path = dir.join("f");
+        std::fs::write(&path, bytes).unwrap();
+        let e = match kind {
+            FileKind::Codebook => read_codebook_with(&path, limits).err(),
+            FileKind::Stream => read_stream_with(&path, limits).err(),
+        }?;
+        let prefix = format!("{}: ", path.display());
+        Some(message(e).replacen(&prefix, "", 1))
+    }
+
+    #[test]
+    fn file_readers_say_what_the_byte_readers_say() {
+        // The file readers check the header before reading the payload; they
+        // must refuse exactly what the in-memory readers refuse, alike.
+        let dir = tempfile::tempdir().unwrap();
+        let limits = Limits::default();
+        let book = codebook_to_bytes(&record_book()).unwrap();
+        let stream = stream_to_bytes(&stream_header(5, 9), &[0, 1, 2, 3, 4, 4, 3, 2, 1]).unwrap();
+        for (kind, file) in [(FileKind::Codebook, &book), (FileKind::Stream, &stream)] {
+            let in_memory = |bytes: &[u8]| match kind {
+                FileKind::Codebook => codebook_from_bytes(bytes).err().map(message),
+                FileKind::Stream => stream_from_bytes(bytes).err().map(message),
+            };
+            let mut damaged: Vec<Vec<u8>> = (0..file.len()).map(|n| file[..n].to_vec()).collect();
+            for at in 0..file.len() {
+                for bit in [0, 3, 7] {
+                    let mut bad = file.clone();
+                    bad[at] ^= 1 << bit;
+                    damaged.push(bad.clone());
+                    reseal(&mut bad);
+                    damaged.push(bad);
+                }
+            }
+            for bad in &damaged {
+                let want = in_memory(bad);
+                let got = file_message(dir.path(), bad, kind, &limits);
+                assert_eq!(got, want, "{kind:?}, {} bytes", bad.len());
+            }
+        }
+    }
+
+    #[test]
+    fn file_readers_check_limits_before_reading_the_payload() {
+        let dir = tempfile::tempdir().unwrap();
+        let book = codebook_to_bytes(&plain_book(8, 2, 3)).unwrap();
+        let tight = Limits {
+            max_codewords: 7,
+            max_vectors: 20,
+            ..Limits::default()
+        };
+        let e = file_message(dir.path(), &book, FileKind::Codebook, &tight).unwrap();
+        assert_eq!(
+            e,
+            "reading codebook: the codebook has 8 codewords, above the limit of 7; \
+             raise it with --max-codewords"
+        );
+        assert!(codebook_from_bytes_with(&book, &tight).is_err());
+        let fits = Limits {
+            max_codewords: 8,
+            ..tight
+        };
+        assert!(file_message(dir.path(), &book, FileKind::Codebook, &fits).is_none());
+
+        let stream = stream_to_bytes(&stream_header(4, 21), &[3; 21]).unwrap();
+        let e = file_message(dir.path(), &stream, FileKind::Stream, &tight).unwrap();
+        assert!(
+            e.ends_with(
+                "the stream has 21 vectors, above the limit of 20; raise it with --max-vectors"
+            ),
+            "{e}"
+        );
+
+        // A well-sealed header claiming 4 billion codewords of 1000
+        // components (16 TB) in a file of a few dozen bytes: refused from
+        // the header and the file length alone.
+        let header = BookHeader {
+            dimension: 1000,
+            size: 4_000_000_000,
+            meaning: Meaning::Plain,
+            training: facts(),
+        };
+        let bytes = sealed(FileKind::Codebook, &header, &[0; 16]);
+        let e = file_message(dir.path(), &bytes, FileKind::Codebook, &Limits::default()).unwrap();
+        assert!(e.contains("4000000000 codewords of dimension 1000 (16000000000000 bytes), but the payload has 16 bytes"), "{e}");
     }
 
     #[test]

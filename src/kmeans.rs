@@ -10,7 +10,7 @@
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
-use crate::encode::{distance_sq, Encoder, Nearest, NearestTwo, CHUNK_ROWS};
+use crate::encode::{distance_sq, Encoder, Nearest, NearestTwo, SearchMethod, CHUNK_ROWS};
 use crate::error::{Error, ErrorKind, Result};
 // Squared distance in f64 from explicit differences: the reported figure.
 use crate::metrics::squared_error as exact_sq;
@@ -83,6 +83,8 @@ pub struct TrainConfig {
     pub seed: u64,
     /// Whether restarts may run on grid cell means first. Default auto.
     pub coarse_start: CoarseStart,
+    /// Whether restarts may run on a sample of a large input. Default auto.
+    pub sampling: Sampling,
 }
 
 /// Whether training may start on a coarse stand-in for the data.
@@ -101,6 +103,31 @@ pub enum CoarseStart {
     /// Every restart runs on all distinct vectors.
     Never,
 }
+
+/// Whether training may run its restarts on a sample of the input.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Sampling {
+    /// When the input has more than [`SAMPLE_ABOVE_PER_CODEWORD`] × k
+    /// distinct vectors (and no coarse start applies), seeding, Lloyd and
+    /// the single-vector moves of every restart run on a seeded sample of
+    /// [`SAMPLE_PER_CODEWORD`] × k draws (with replacement, ∝ weight); the
+    /// restart whose codebook has the lowest distortion on all distinct
+    /// vectors is then refined on all of them with full Lloyd passes under
+    /// the usual stop rules. Reported in [`TrainReport::sample_draws`] and
+    /// a notice.
+    Auto,
+    /// Every restart runs on all distinct vectors.
+    Never,
+}
+
+/// Draws per codeword of a training sample ([`Sampling::Auto`]); the
+/// general-purpose engines cap their training sets at a multiple of k too.
+pub const SAMPLE_PER_CODEWORD: usize = 256;
+/// Distinct vectors per codeword above which [`Sampling::Auto`] samples:
+/// the sample is then at most a quarter of the input.
+pub const SAMPLE_ABOVE_PER_CODEWORD: usize = 4 * SAMPLE_PER_CODEWORD;
+/// Mixed into the master seed for the training sample's draws.
+const SAMPLE_STREAM: u64 = 0x7361_6d70_6c65_2121;
 
 /// The most components [`CoarseStart::Auto`] starts coarse with (colours
 /// with or without alpha); cells hold few vectors in more.
@@ -122,6 +149,7 @@ impl TrainConfig {
             tolerance: 1e-6,
             seed: DEFAULT_SEED,
             coarse_start: CoarseStart::Auto,
+            sampling: Sampling::Auto,
         }
     }
 
@@ -158,6 +186,12 @@ impl TrainConfig {
     /// Sets whether training may start coarse.
     pub fn coarse_start(mut self, c: CoarseStart) -> Self {
         self.coarse_start = c;
+        self
+    }
+
+    /// Sets whether restarts may run on a sample of a large input.
+    pub fn sampling(mut self, s: Sampling) -> Self {
+        self.sampling = s;
         self
     }
 
@@ -227,9 +261,9 @@ pub struct TrainReport {
     pub distortion: f64,
     /// `distortion` / (total weight × dimension): mean squared error per component.
     pub mse_per_component: f64,
-    /// Total distortion of every restart, in order (after a coarse start:
-    /// of its codebook on all distinct vectors, before the final refinement
-    /// of the kept one).
+    /// Total distortion of every restart, in order (after a coarse start or
+    /// on a sample: of its codebook on all distinct vectors, before the
+    /// final refinement of the kept one).
     pub restart_distortions: Vec<f64>,
     /// Index of the kept restart.
     pub best_restart: u32,
@@ -244,6 +278,9 @@ pub struct TrainReport {
     /// Cell means the restarts ran on, when training started coarse
     /// ([`CoarseStart`]).
     pub coarse_vectors: Option<usize>,
+    /// Draws of the sample the restarts ran on, when training sampled a
+    /// large input ([`Sampling`]).
+    pub sample_draws: Option<usize>,
     /// Things the user should know (e.g. fewer distinct vectors than k).
     pub notices: Vec<String>,
 }
@@ -408,7 +445,7 @@ pub fn train_constrained(
             )),
         ));
     }
-    let unique = positive_weight(&vectors.deduplicated())?;
+    let unique = positive_weight(vectors.deduplicated())?;
     let distinct = unique.len();
     let total_weight = unique.total_weight();
     let mut notices = Vec::new();
@@ -461,6 +498,7 @@ pub fn train_constrained(
                 total_weight,
                 distinct_vectors: distinct,
                 coarse_vectors: None,
+                sample_draws: None,
                 notices,
             },
         });
@@ -474,7 +512,27 @@ pub fn train_constrained(
         && unique.len() > COARSE_CELLS
         && !moves_affordable(&unique, cfg.size))
     .then(|| unique.coarsened(COARSE_CELLS));
-    let stage = coarse.as_ref().unwrap_or(&unique);
+    // Many distinct vectors otherwise (long logs): restarts run on a seeded
+    // sample, and only the best is refined on every distinct vector.
+    let draws = SAMPLE_PER_CODEWORD.saturating_mul(cfg.size);
+    let sample = (coarse.is_none()
+        && cfg.sampling == Sampling::Auto
+        && unique.len() > SAMPLE_ABOVE_PER_CODEWORD.saturating_mul(cfg.size))
+    .then(|| {
+        unique.sampled(
+            draws,
+            &mut SeededRng::new(derive_seed(cfg.seed, SAMPLE_STREAM)),
+        )
+    })
+    .filter(|s| s.len() > cfg.size);
+    if let Some(s) = &sample {
+        notices.push(format!(
+            "trained on a sample: the restarts ran on {draws} vectors drawn at random from the {distinct} distinct ones ({} distinct in the sample); the best was then refined with full passes over all of them",
+            s.len()
+        ));
+    }
+    let stand_in = coarse.as_ref().or(sample.as_ref());
+    let stage = stand_in.unwrap_or(&unique);
     let free = constraint.without_snap();
     // Restarts are independent (each has its own derived seed), so they run
     // side by side; the single-vector moves inside each are sequential.
@@ -509,7 +567,7 @@ pub fn train_constrained(
                     lloyd_core(stage, &init, &opts, free, &on_iter)?
                 }
             };
-            if coarse.is_some() {
+            if stand_in.is_some() {
                 let polished = polish(stage, result, &opts, free, &on_iter)?;
                 let mut labels = vec![u32::MAX; unique.len()];
                 let on_all = assign(&unique, &polished.codewords, &mut labels)?.distortion;
@@ -533,7 +591,7 @@ pub fn train_constrained(
         .nth(best_restart)
         .expect("at least one restart ran");
     let best_restart = best_restart as u32;
-    let result = if coarse.is_some() {
+    let result = if stand_in.is_some() {
         let on_iter = |iteration: u32, distortion: f64| {
             observe(TrainEvent::Iteration {
                 restart: best_restart,
@@ -575,6 +633,7 @@ pub fn train_constrained(
             total_weight,
             distinct_vectors: distinct,
             coarse_vectors: coarse.as_ref().map(VectorSet::len),
+            sample_draws: sample.as_ref().map(|_| draws),
             notices,
         },
         codewords,
@@ -627,12 +686,12 @@ fn distinct_codewords(codewords: &[f32], dim: usize) -> Vec<f32> {
 
 /// Drops rows of weight 0 (they cannot pull a codeword) and refuses a set
 /// whose weights are all 0.
-fn positive_weight(v: &VectorSet) -> Result<VectorSet> {
+fn positive_weight(v: VectorSet) -> Result<VectorSet> {
     let Some(w) = v.weights() else {
-        return Ok(v.clone());
+        return Ok(v);
     };
     if w.iter().all(|&x| x > 0.0) {
-        return Ok(v.clone());
+        return Ok(v);
     }
     let mut data = Vec::new();
     let mut weights = Vec::new();
@@ -666,14 +725,6 @@ pub fn seed_random(vectors: &VectorSet, k: usize, rng: &mut SeededRng) -> Vec<f3
         .collect()
 }
 
-/// Draws an index with probability ∝ `mass[i]`, given the prefix sums.
-fn draw(prefix: &[f64], rng: &mut SeededRng) -> usize {
-    let total = *prefix.last().expect("non-empty");
-    let target = rng.unit_f64() * total;
-    let i = prefix.partition_point(|&p| p <= target);
-    i.min(prefix.len() - 1)
-}
-
 /// Greedy weighted k-means++ seeding. Needs more distinct vectors than `k`.
 pub fn seed_kmeans_plus_plus(vectors: &VectorSet, k: usize, rng: &mut SeededRng) -> Vec<f32> {
     seed_kmeans_plus_plus_around(vectors, k, rng, &[])
@@ -681,6 +732,14 @@ pub fn seed_kmeans_plus_plus(vectors: &VectorSet, k: usize, rng: &mut SeededRng)
 
 /// Greedy weighted k-means++ that starts from the given centres (flat,
 /// possibly none) and adds the rest; the result begins with `fixed`.
+///
+/// Each round draws `2 + ⌊ln k⌋` candidates with probability ∝ weight ×
+/// squared distance to the closest centre and keeps the one that lowers
+/// the potential most (Arthur & Vassilvitskii 2007, greedy variant). A
+/// candidate can only take vectors from centres nearer to it than twice
+/// their farthest member (triangle inequality), so the other groups are
+/// never measured; the choice equals measuring every vector, up to the
+/// order of the sums.
 pub fn seed_kmeans_plus_plus_around(
     vectors: &VectorSet,
     k: usize,
@@ -691,32 +750,21 @@ pub fn seed_kmeans_plus_plus_around(
     let d = vectors.dimension();
     let candidates = 2 + (k as f64).ln().floor() as usize;
     let mut centres: Vec<f32> = Vec::with_capacity(k * d);
-    let start: Vec<f32> = if fixed.is_empty() {
+    if fixed.is_empty() {
         let wprefix: Vec<f64> = (0..n)
             .scan(0.0, |s, i| {
                 *s += vectors.weight(i);
                 Some(*s)
             })
             .collect();
-        vectors.row(draw(&wprefix, rng)).to_vec()
+        centres.extend_from_slice(vectors.row(rng.draw(&wprefix)));
     } else {
-        fixed.to_vec()
-    };
-    centres.extend_from_slice(&start);
-    // Closest squared distance of each vector to the chosen centres.
-    let mut closest: Vec<f64> = (0..n)
-        .into_par_iter()
-        .with_min_len(CHUNK_ROWS)
-        .map(|i| {
-            start
-                .chunks_exact(d)
-                .map(|c| exact_sq(vectors.row(i), c))
-                .fold(f64::INFINITY, f64::min)
-        })
-        .collect();
-
+        centres.extend_from_slice(fixed);
+    }
+    let mut groups = SeedGroups::new(vectors, &centres);
     while centres.len() < k * d {
-        let prefix: Vec<f64> = closest
+        let prefix: Vec<f64> = groups
+            .closest
             .iter()
             .enumerate()
             .scan(0.0, |s, (i, &c)| {
@@ -727,49 +775,142 @@ pub fn seed_kmeans_plus_plus_around(
         if *prefix.last().unwrap_or(&0.0) <= 0.0 {
             break; // every vector already sits on a centre
         }
-        let picks: Vec<usize> = (0..candidates).map(|_| draw(&prefix, rng)).collect();
-        // Potential after adding each candidate, summed in fixed chunks.
-        let potentials: Vec<f64> = picks
-            .iter()
-            .map(|&p| {
-                let cand = vectors.row(p);
-                let partial: Vec<f64> = closest
-                    .par_chunks(CHUNK_ROWS)
-                    .enumerate()
-                    .map(|(c, chunk)| {
-                        let base = c * CHUNK_ROWS;
-                        chunk
-                            .iter()
-                            .enumerate()
-                            .map(|(j, &old)| {
-                                let i = base + j;
-                                vectors.weight(i) * old.min(exact_sq(vectors.row(i), cand))
-                            })
-                            .sum::<f64>()
-                    })
-                    .collect();
-                partial.iter().sum()
-            })
+        let picks: Vec<usize> = (0..candidates).map(|_| rng.draw(&prefix)).collect();
+        // How much each candidate would lower the potential.
+        let gains: Vec<f64> = picks
+            .par_iter()
+            .map(|&p| groups.gain(vectors, &centres, vectors.row(p)))
             .collect();
         let mut best = 0;
-        for (c, &pot) in potentials.iter().enumerate() {
-            if pot < potentials[best] {
+        for (c, &gain) in gains.iter().enumerate() {
+            if gain > gains[best] {
                 best = c;
             }
         }
-        let chosen = vectors.row(picks[best]).to_vec();
-        closest
-            .par_chunks_mut(CHUNK_ROWS)
-            .enumerate()
-            .for_each(|(c, chunk)| {
-                let base = c * CHUNK_ROWS;
-                for (j, old) in chunk.iter_mut().enumerate() {
-                    *old = old.min(exact_sq(vectors.row(base + j), &chosen));
-                }
-            });
-        centres.extend_from_slice(&chosen);
+        let chosen = vectors.row(picks[best]);
+        groups.add(vectors, &centres, chosen);
+        centres.extend_from_slice(chosen);
     }
     centres
+}
+
+/// Which centre each vector is closest to during seeding, grouped by centre,
+/// each group ordered from its farthest member to its nearest.
+struct SeedGroups {
+    /// Squared distance of each vector to its closest centre.
+    closest: Vec<f64>,
+    /// The vectors closest to each centre, farthest first (ties by index).
+    members: Vec<Vec<u32>>,
+}
+
+/// Relative slack on the triangle-inequality test: far above the rounding
+/// of f64 distances between f32 points, so no vector that could gain is
+/// skipped.
+const SEED_SLACK: f64 = 1e-9;
+
+impl SeedGroups {
+    fn new(vectors: &VectorSet, start: &[f32]) -> SeedGroups {
+        let d = vectors.dimension();
+        let nearest: Vec<(f64, u32)> = (0..vectors.len())
+            .into_par_iter()
+            .with_min_len(CHUNK_ROWS)
+            .map(|i| {
+                let mut best = (f64::INFINITY, 0u32);
+                for (c, centre) in start.chunks_exact(d).enumerate() {
+                    let e = exact_sq(vectors.row(i), centre);
+                    if e < best.0 {
+                        best = (e, c as u32);
+                    }
+                }
+                best
+            })
+            .collect();
+        let mut groups = SeedGroups {
+            closest: nearest.iter().map(|&(e, _)| e).collect(),
+            members: vec![Vec::new(); start.len() / d],
+        };
+        for (i, &(_, c)) in nearest.iter().enumerate() {
+            groups.members[c as usize].push(i as u32);
+        }
+        for m in 0..groups.members.len() {
+            groups.order(m);
+        }
+        groups
+    }
+
+    /// Puts group `m` in order, farthest member first.
+    fn order(&mut self, m: usize) {
+        let closest = &self.closest;
+        self.members[m].sort_unstable_by(|&a, &b| {
+            closest[b as usize]
+                .total_cmp(&closest[a as usize])
+                .then(a.cmp(&b))
+        });
+    }
+
+    /// For each group, its members that a new centre at `at` could come
+    /// closer to: a vector x of the group of centre c can only if
+    /// |at − c| < 2|x − c|, so the scan of a group stops at its first
+    /// member nearer to c than half that.
+    fn within_reach<'a>(
+        &'a self,
+        centres: &'a [f32],
+        at: &'a [f32],
+    ) -> impl Iterator<Item = (usize, usize)> + 'a {
+        centres
+            .chunks_exact(at.len())
+            .enumerate()
+            .map(move |(c, centre)| {
+                let quarter = exact_sq(at, centre) / 4.0;
+                let members = &self.members[c];
+                let count = members
+                    .partition_point(|&i| self.closest[i as usize] * (1.0 + SEED_SLACK) > quarter);
+                (c, count)
+            })
+            .filter(|&(_, count)| count > 0)
+    }
+
+    /// Weighted drop of the potential if a centre were added at `at`.
+    fn gain(&self, vectors: &VectorSet, centres: &[f32], at: &[f32]) -> f64 {
+        let mut gain = 0.0;
+        for (c, count) in self.within_reach(centres, at) {
+            for &i in &self.members[c][..count] {
+                let i = i as usize;
+                let e = exact_sq(vectors.row(i), at);
+                if e < self.closest[i] {
+                    gain += vectors.weight(i) * (self.closest[i] - e);
+                }
+            }
+        }
+        gain
+    }
+
+    /// Adds a centre at `at` (the next after `centres`): vectors closer to
+    /// it than to their own centre join its group.
+    fn add(&mut self, vectors: &VectorSet, centres: &[f32], at: &[f32]) {
+        let reached: Vec<(usize, usize)> = self.within_reach(centres, at).collect();
+        let mut joined: Vec<u32> = Vec::new();
+        for (c, count) in reached {
+            let closest = &mut self.closest;
+            let mut kept = 0;
+            let group = &mut self.members[c];
+            for j in 0..count {
+                let i = group[j];
+                let e = exact_sq(vectors.row(i as usize), at);
+                if e < closest[i as usize] {
+                    closest[i as usize] = e;
+                    joined.push(i);
+                } else {
+                    group[kept] = i;
+                    kept += 1;
+                }
+            }
+            // Those left keep their order, farthest first.
+            group.drain(kept..count);
+        }
+        self.members.push(joined);
+        self.order(self.members.len() - 1);
+    }
 }
 
 /// Per-chunk results of one assignment pass.
@@ -938,6 +1079,9 @@ struct BoundedAssign {
     lower: Vec<f64>,
     /// The codewords of the previous pass (empty before the first).
     last: Vec<f32>,
+    /// Neighbour lists of the previous pass's codewords, kept so that the
+    /// next pass re-sorts nearly sorted rows.
+    near: Option<Neighbours>,
 }
 
 /// The most codewords for which passes keep [`Neighbours`] (k² entries).
@@ -1001,15 +1145,42 @@ impl Neighbours {
         Neighbours { rows, k }
     }
 
+    /// The same lists for moved codewords: every distance measured again,
+    /// each row re-sorted from its last order (nearly sorted when the
+    /// codewords moved little, which an adaptive sort takes in about one
+    /// sweep). Equal to [`Neighbours::new`]: the order is total.
+    fn refresh(&mut self, codewords: &[f32], d: usize) {
+        let k = self.k;
+        if k > 1 {
+            self.rows
+                .par_chunks_mut(k - 1)
+                .enumerate()
+                .for_each(|(a, row)| {
+                    let ca = &codewords[a * d..(a + 1) * d];
+                    for (gap, j) in row.iter_mut() {
+                        let j = *j as usize;
+                        *gap = exact_sq(ca, &codewords[j * d..(j + 1) * d]).sqrt();
+                    }
+                    row.sort_by(|x, y| x.0.total_cmp(&y.0).then(x.1.cmp(&y.1)));
+                });
+        }
+    }
+
     fn row(&self, a: usize) -> &[(f64, u32)] {
         &self.rows[a * (self.k - 1)..(a + 1) * (self.k - 1)]
     }
 
-    /// How many codewords [`Neighbours::nearest_two`] would measure for a
-    /// vector at distance `u` from codeword `a`.
-    fn within(&self, a: usize, u: f64, rel: f64) -> usize {
+    /// Whether [`Neighbours::nearest_two`] would measure more than `count`
+    /// codewords for a vector at distance `u` from codeword `a`: codeword
+    /// `a` and every other one within reach, so whether the `count`-th
+    /// nearest other one is within reach (one look-up, no search).
+    fn measures_more_than(&self, a: usize, u: f64, rel: f64, count: usize) -> bool {
         let reach = 2.0 * u * (1.0 + rel) + BOUND_FLOOR;
-        1 + self.row(a).partition_point(|&(gap, _)| gap <= reach)
+        count == 0
+            || self
+                .row(a)
+                .get(count - 1)
+                .is_some_and(|&(gap, _)| gap <= reach)
     }
 
     /// Half the distance from codeword a to the nearest other one.
@@ -1063,6 +1234,7 @@ impl BoundedAssign {
             upper: vec![f64::INFINITY; n],
             lower: vec![0.0; n],
             last: Vec::new(),
+            near: None,
         }
     }
 
@@ -1091,7 +1263,12 @@ impl BoundedAssign {
                         * (1.0 + rel)
                 })
                 .collect();
-            let near = (k <= NEIGHBOUR_LISTS_UP_TO).then(|| Neighbours::new(codewords, d));
+            match &mut self.near {
+                _ if k > NEIGHBOUR_LISTS_UP_TO => self.near = None,
+                Some(n) if n.k == k => n.refresh(codewords, d),
+                _ => self.near = Some(Neighbours::new(codewords, d)),
+            }
+            let near = self.near.as_ref();
             let half_gap: Vec<f64> = match &near {
                 Some(n) => (0..k).map(|a| n.half_gap(a)).collect(),
                 None => (0..k)
@@ -1109,6 +1286,9 @@ impl BoundedAssign {
             (moved, near, half_gap)
         };
         let encoder = Encoder::new(codewords, d)?;
+        // Only the blocked kernel beats long neighbour lists; a tree batch
+        // (low dimensions) is a search per vector like theirs.
+        let blocked = encoder.batch_method() == SearchMethod::Scan;
         // The largest move and the largest move of any other codeword.
         let (mut top, mut top_at, mut runner) = (0.0f64, usize::MAX, 0.0f64);
         for (j, &m) in moved.iter().enumerate() {
@@ -1150,7 +1330,10 @@ impl BoundedAssign {
                             continue;
                         }
                         match &near {
-                            Some(near) if near.within(a, up[j], rel) * BATCH_GAIN < k => {
+                            Some(near)
+                                if !blocked
+                                    || !near.measures_more_than(a, up[j], rel, k / BATCH_GAIN) =>
+                            {
                                 let (two, beyond) = near.nearest_two(r, a, up[j], codewords, rel);
                                 let (l, u, lo) = (&mut lab[j], &mut up[j], &mut low[j]);
                                 p.changed += u64::from(settle(r, codewords, two, beyond, l, u, lo));
@@ -1649,6 +1832,157 @@ mod tests {
             }
         }
         (out, dist)
+    }
+
+    /// Greedy k-means++ measuring every vector for every candidate, written
+    /// for clarity: the oracle for the grouped seeding.
+    fn naive_greedy_seeding(
+        v: &VectorSet,
+        k: usize,
+        rng: &mut SeededRng,
+        fixed: &[f32],
+    ) -> Vec<f32> {
+        let (n, d) = (v.len(), v.dimension());
+        let candidates = 2 + (k as f64).ln().floor() as usize;
+        let mut centres = fixed.to_vec();
+        if centres.is_empty() {
+            let w: Vec<f64> = (0..n)
+                .scan(0.0, |s, i| {
+                    *s += v.weight(i);
+                    Some(*s)
+                })
+                .collect();
+            centres.extend_from_slice(v.row(rng.draw(&w)));
+        }
+        let nearest = |x: &[f32], cs: &[f32]| {
+            cs.chunks_exact(d)
+                .map(|c| exact_sq(x, c))
+                .fold(f64::INFINITY, f64::min)
+        };
+        while centres.len() < k * d {
+            let closest: Vec<f64> = v.rows().map(|x| nearest(x, &centres)).collect();
+            let prefix: Vec<f64> = (0..n)
+                .scan(0.0, |s, i| {
+                    *s += v.weight(i) * closest[i];
+                    Some(*s)
+                })
+                .collect();
+            if prefix[n - 1] <= 0.0 {
+                break;
+            }
+            let picks: Vec<usize> = (0..candidates).map(|_| rng.draw(&prefix)).collect();
+            let potential = |p: usize| -> f64 {
+                (0..n)
+                    .map(|i| v.weight(i) * closest[i].min(exact_sq(v.row(i), v.row(p))))
+                    .sum()
+            };
+            let best = picks
+                .iter()
+                .map(|&p| (potential(p), p))
+                .fold((f64::INFINITY, 0), |a, b| if b.0 < a.0 { b } else { a });
+            centres.extend_from_slice(v.row(best.1));
+        }
+        centres
+    }
+
+    #[test]
+    fn large_inputs_train_on_a_sample_and_say_so() {
+        // 10 000 distinct points around 8 separated spots, k = 8: above
+        // 1 024 per codeword, so the restarts see 2 048 draws.
+        let spots: Vec<[f32; 2]> = (0..8)
+            .map(|i| [(i % 4) as f32 * 9.0, (i / 4) as f32 * 9.0])
+            .collect();
+        let v = gaussian_mixture(17, 10_000, &spots);
+        let auto = train(&v, &TrainConfig::new(8).check().unwrap()).unwrap();
+        assert_eq!(auto.report.sample_draws, Some(8 * SAMPLE_PER_CODEWORD));
+        assert!(auto.report.notices.iter().any(|n| n.contains("sample")));
+        // The same seed gives the same codebook.
+        assert_eq!(
+            auto,
+            train(&v, &TrainConfig::new(8).check().unwrap()).unwrap()
+        );
+        let full = train(
+            &v,
+            &TrainConfig::new(4)
+                .sampling(Sampling::Never)
+                .check()
+                .unwrap(),
+        )
+        .unwrap();
+        assert_eq!(full.report.sample_draws, None);
+        assert!(full.report.notices.is_empty());
+        // Refined on every vector, the result is as good as training on all
+        // of them (to 1 %; measured: equal here).
+        assert!(
+            auto.report.distortion <= full.report.distortion * 1.01,
+            "{} vs {}",
+            auto.report.distortion,
+            full.report.distortion
+        );
+        // Below the threshold nothing is sampled.
+        let small = train(&v, &TrainConfig::new(10).check().unwrap()).unwrap();
+        assert_eq!(small.report.sample_draws, None);
+    }
+
+    #[test]
+    fn refreshed_neighbour_lists_equal_new_ones() {
+        // Codewords that move a little (nearly sorted rows), a lot, and onto
+        // each other (equal gaps, ordered by index).
+        let mut rng = SeededRng::new(33);
+        for &(d, k, step) in &[(3, 40, 0.01f32), (3, 40, 5.0), (16, 25, 0.1), (2, 30, 0.0)] {
+            let mut cw: Vec<f32> = (0..k * d).map(|_| rng.normal() as f32).collect();
+            let mut lists = Neighbours::new(&cw, d);
+            for round in 0..3 {
+                for (i, c) in cw.iter_mut().enumerate() {
+                    *c = if step == 0.0 && i % 3 == round {
+                        0.5
+                    } else {
+                        *c + step * rng.normal() as f32
+                    };
+                }
+                lists.refresh(&cw, d);
+                assert_eq!(
+                    lists.rows,
+                    Neighbours::new(&cw, d).rows,
+                    "d={d} k={k} step={step}"
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn grouped_seeding_equals_measuring_every_vector() {
+        // Clustered data (where the groups prune most), duplicates and
+        // weights, a few dimensions, with and without fixed centres.
+        let mut rng = SeededRng::new(5);
+        for &(d, n, k, fixed) in &[
+            (1, 400, 12, 0),
+            (2, 900, 40, 0),
+            (3, 1500, 64, 2),
+            (5, 700, 30, 1),
+            (16, 500, 20, 0),
+        ] {
+            let spots: Vec<f32> = (0..10 * d).map(|_| 20.0 * rng.normal() as f32).collect();
+            let mut data = Vec::with_capacity(n * d);
+            for i in 0..n {
+                let s = i % 10;
+                for c in 0..d {
+                    let x = spots[s * d + c] + rng.normal() as f32;
+                    data.push(if i % 7 == 0 { x.round() } else { x });
+                }
+            }
+            let weights: Vec<f64> = (0..n).map(|i| 1.0 + (i % 4) as f64).collect();
+            let v = VectorSet::new(d, data)
+                .unwrap()
+                .with_weights(weights)
+                .unwrap();
+            let pinned: Vec<f32> = v.as_flat()[..fixed * d].to_vec();
+            for seed in 0..3 {
+                let ours = seed_kmeans_plus_plus_around(&v, k, &mut SeededRng::new(seed), &pinned);
+                let naive = naive_greedy_seeding(&v, k, &mut SeededRng::new(seed), &pinned);
+                assert_eq!(ours, naive, "d={d} n={n} k={k} seed={seed}");
+            }
+        }
     }
 
     #[test]

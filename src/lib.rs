@@ -54,6 +54,7 @@ pub mod error;
 pub mod export;
 pub mod format;
 pub mod kmeans;
+pub mod limits;
 pub mod load;
 pub mod metrics;
 pub mod pack;

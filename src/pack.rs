@@ -92,8 +92,8 @@ pub fn unpack_indices(bytes: &[u8], count: usize, bits: u32) -> Result<Vec<u32>>
         ));
     }
     // The length check bounds `count` by 8 × bytes.len(), so this allocation
-    // is no larger than the input justifies.
-    let mut out = Vec::with_capacity(count);
+    // is no larger than the input justifies; a shortage is still an error.
+    let mut out = crate::limits::vec_with_capacity(count, STAGE, "the indices")?;
     let mask = low_mask(bits);
     let mut acc: u64 = 0;
     let mut filled: u32 = 0;

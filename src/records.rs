@@ -11,6 +11,7 @@ use crate::error::{Error, ErrorKind, Result};
 use crate::export::{undo_scaling, RecordCsvWriter, TimeOut};
 use crate::format::{RecordInfo, StreamHeader};
 use crate::kmeans::{train_observed, CheckedTrainConfig, TrainEvent, TrainReport};
+use crate::limits;
 use crate::load::{
     fit_layout, frames_of, to_vectors, CsvOptions, RecordStream, RecordTable, TimeInfo,
 };
@@ -144,21 +145,29 @@ pub fn train_tables(
     config: &CheckedTrainConfig,
     observe: &(dyn Fn(TrainEvent) + Sync),
 ) -> Result<RecordTraining> {
-    let first = same_columns(tables, "training on records")?;
-    let merged = RecordTable::new(
-        first.columns.clone(),
-        tables
-            .iter()
-            .flat_map(|t| t.values.iter().copied())
-            .collect(),
-    );
+    const STAGE: &str = "training on records";
+    let first = same_columns(tables, STAGE)?;
+    let values: usize = tables.iter().map(|t| t.values.len()).sum();
+    let mut all = limits::vec_with_capacity(values, STAGE, "a copy of the table")?;
+    for t in tables {
+        all.extend_from_slice(&t.values);
+    }
+    let merged = RecordTable::new(first.columns.clone(), all);
     let fitted = fit_layout(&merged, opts)?;
     let mut layout = fitted.layout;
     layout.time_column = first.times.as_ref().map(|t| t.name.clone());
     let mut notices: Vec<String> = tables.iter().flat_map(|t| t.notices.clone()).collect();
     notices.extend(fitted.notices);
 
-    let mut data = Vec::new();
+    let frames: usize = tables
+        .iter()
+        .map(|t| frames_of(t.rows(), layout.frame))
+        .sum();
+    let mut data = limits::vec_with_capacity(
+        frames.saturating_mul(layout.dimension()),
+        STAGE,
+        "the training vectors",
+    )?;
     let mut per_table = Vec::new();
     for t in tables {
         let v = to_vectors(t, &layout)?;

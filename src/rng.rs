@@ -52,6 +52,15 @@ impl SeededRng {
         }
     }
 
+    /// An index drawn with probability ∝ `mass[i]`, given the running sums
+    /// of the masses (non-empty, last one > 0).
+    pub fn draw(&mut self, prefix: &[f64]) -> usize {
+        let total = *prefix.last().expect("non-empty");
+        let target = self.unit_f64() * total;
+        let i = prefix.partition_point(|&p| p <= target);
+        i.min(prefix.len() - 1)
+    }
+
     /// A standard normal value (Box–Muller; used for perturbations and tests).
     pub fn normal(&mut self) -> f64 {
         loop {

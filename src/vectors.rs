@@ -150,7 +150,11 @@ impl VectorSet {
         let order = self.sorted_rows();
         // (first index, summed weight) per run of equal rows; the weights
         // are summed in index order, as a pass in appearance order would.
-        let mut firsts: Vec<(u32, f64)> = Vec::new();
+        let runs = 1 + order
+            .windows(2)
+            .filter(|w| !self.row_bits(w[0]).eq(self.row_bits(w[1])))
+            .count();
+        let mut firsts: Vec<(u32, f64)> = Vec::with_capacity(runs.min(order.len()));
         for &row in &order {
             let w = self.weight(row as usize);
             match firsts.last_mut() {
@@ -168,6 +172,38 @@ impl VectorSet {
             dimension: d,
             data,
             weights: Some(firsts.into_iter().map(|(_, w)| w).collect()),
+        }
+    }
+
+    /// A seeded sample of `draws` rows drawn with replacement, each with
+    /// probability ∝ its weight (an independent sample of the data the
+    /// weighted rows stand for); a row drawn several times appears once,
+    /// weighted by its count. Rows keep their order.
+    pub fn sampled(&self, draws: usize, rng: &mut crate::rng::SeededRng) -> VectorSet {
+        let prefix: Vec<f64> = (0..self.len())
+            .scan(0.0, |s, i| {
+                *s += self.weight(i);
+                Some(*s)
+            })
+            .collect();
+        let mut picks: Vec<usize> = (0..draws).map(|_| rng.draw(&prefix)).collect();
+        picks.sort_unstable();
+        let mut data = Vec::new();
+        let mut weights: Vec<f64> = Vec::new();
+        let mut last = usize::MAX;
+        for i in picks {
+            if i == last {
+                *weights.last_mut().expect("a row was kept") += 1.0;
+            } else {
+                data.extend_from_slice(self.row(i));
+                weights.push(1.0);
+                last = i;
+            }
+        }
+        VectorSet {
+            dimension: self.dimension,
+            data,
+            weights: Some(weights),
         }
     }
 
@@ -288,6 +324,24 @@ impl VectorSet {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn a_sample_draws_in_proportion_to_weight() {
+        // Weights 1 and 3: about a quarter and three quarters of the draws.
+        let v = VectorSet::new(1, vec![0.0, 1.0])
+            .unwrap()
+            .with_weights(vec![1.0, 3.0])
+            .unwrap();
+        let mut rng = crate::rng::SeededRng::new(9);
+        let s = v.sampled(40_000, &mut rng);
+        assert_eq!(s.as_flat(), &[0.0, 1.0]);
+        assert_eq!(s.total_weight(), 40_000.0);
+        let share = s.weight(1) / 40_000.0;
+        assert!((share - 0.75).abs() < 0.01, "{share}");
+        // Seeded: the same seed, the same sample.
+        let again = v.sampled(40_000, &mut crate::rng::SeededRng::new(9));
+        assert_eq!(s, again);
+    }
 
     #[test]
     fn rejects_ragged_and_non_finite() {

@@ -82,21 +82,26 @@ def run(cmd, env=None):
     the end); the rusage of a forked child would count this Python process
     too.
     """
-    started = time.perf_counter()
-    proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=env)
-    status = Path(f"/proc/{proc.pid}/status")
-    peak_kb = 0
-    while proc.poll() is None:
-        try:
-            for line in status.read_text().splitlines():
-                if line.startswith("VmHWM:"):
-                    peak_kb = max(peak_kb, int(line.split()[1]))
-        except (OSError, ValueError):
-            pass
-        time.sleep(0.005)
-    seconds = time.perf_counter() - started
-    out = proc.stdout.read().decode()
-    err = proc.stderr.read().decode()
+    # Output goes to files: a pipe nobody reads while we poll could fill
+    # and stall the child.
+    with tempfile.TemporaryFile() as out_f, tempfile.TemporaryFile() as err_f:
+        started = time.perf_counter()
+        proc = subprocess.Popen(cmd, stdout=out_f, stderr=err_f, env=env)
+        status = Path(f"/proc/{proc.pid}/status")
+        peak_kb = 0
+        while proc.poll() is None:
+            try:
+                for line in status.read_text().splitlines():
+                    if line.startswith("VmHWM:"):
+                        peak_kb = max(peak_kb, int(line.split()[1]))
+            except (OSError, ValueError):
+                pass
+            time.sleep(0.005)
+        seconds = time.perf_counter() - started
+        out_f.seek(0)
+        err_f.seek(0)
+        out = out_f.read().decode()
+        err = err_f.read().decode()
     if proc.returncode != 0:
         sys.exit(f"{' '.join(map(str, cmd))} failed:\n{err}")
     return out, seconds, peak_kb / 1024.0
@@ -170,13 +175,13 @@ def palette_rows(tmp, vqforge, name):
     return rows, pixels, centres
 
 
-def encode_row(tmp, harness, name, data, codebook, dim, target):
+def encode_row(tmp, harness, mode, name, data, codebook, dim, target):
     data_path = tmp / f"{name}-data.f32"
     book_path = tmp / f"{name}-book.f32"
     out_path = tmp / f"{name}-indices.u32"
     data.astype("<f4").tofile(data_path)
     codebook.astype("<f4").tofile(book_path)
-    text, _, _ = run([harness, "encode", data_path, book_path, str(dim), out_path],
+    text, _, _ = run([harness, mode, data_path, book_path, str(dim), out_path],
                      env=threads_env(THREADS))
     ours = json.loads(text)
     ours_idx = np.fromfile(out_path, dtype="<u4")
@@ -268,13 +273,13 @@ def main():
             print(f"palette: {name} ...", file=sys.stderr)
             r, pixels, centres = palette_rows(tmp, a.vqforge, name)
             rows += r
-            rows.append(encode_row(tmp, a.harness, name, pixels.reshape(-1, 3).astype(np.float32),
-                                   centres, 3, 10))
+            rows.append(encode_row(tmp, a.harness, "pixels", name,
+                                   pixels.reshape(-1, 3).astype(np.float32), centres, 3, 10))
         if "records" in only:
             print("records ...", file=sys.stderr)
             r, x, centroids = records_rows(tmp, a.harness)
             rows += r
-            rows.append(encode_row(tmp, a.harness, "records", x, centroids, 16, 1))
+            rows.append(encode_row(tmp, a.harness, "encode", "records", x, centroids, 16, 1))
     cpu = platform.processor() or platform.machine()
     try:
         for line in Path("/proc/cpuinfo").read_text().splitlines():

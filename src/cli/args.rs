@@ -168,6 +168,18 @@ impl ColourArgs {
     }
 }
 
+/// Limits that protect memory; inputs above them are refused before they are loaded.
+#[derive(Debug, Clone, Args)]
+pub struct LimitArgs {
+    /// Refuse a CSV table or index stream of more vectors than this [default: 100000000].
+    #[arg(long, value_name = "N")]
+    pub max_vectors: Option<u64>,
+
+    /// Refuse a codebook of more codewords than this, read or asked for with --size [default: 16777216].
+    #[arg(long, value_name = "N")]
+    pub max_codewords: Option<u64>,
+}
+
 /// Reading CSV records.
 #[derive(Debug, Clone, Args)]
 pub struct ReadArgs {
@@ -227,6 +239,21 @@ pub struct KmeansArgs {
     /// How the initial codewords are chosen.
     #[arg(long, value_enum, value_name = "METHOD", default_value = "kmeans++")]
     pub seeding: SeedingArg,
+
+    /// Large inputs (over 1024 distinct vectors per codeword): run the restarts on a
+    /// seeded sample of 256 per codeword, then refine the best on all (auto), or
+    /// always use all vectors (never).
+    #[arg(long, value_enum, value_name = "WHEN", default_value = "auto")]
+    pub sampling: SamplingArg,
+}
+
+/// When training may use a sample.
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum SamplingArg {
+    /// Above 1024 distinct vectors per codeword.
+    Auto,
+    /// Never: every restart sees every distinct vector.
+    Never,
 }
 
 #[derive(Debug, Args)]
@@ -254,6 +281,9 @@ pub struct TrainArgs {
 
     #[command(flatten)]
     pub colour: ColourArgs,
+
+    #[command(flatten)]
+    pub limits: LimitArgs,
 
     /// Print one JSON object instead of a table.
     #[arg(long)]
@@ -364,6 +394,9 @@ pub struct CurveArgs {
     #[command(flatten)]
     pub colour: ColourArgs,
 
+    #[command(flatten)]
+    pub limits: LimitArgs,
+
     /// Print one JSON object instead of a table.
     #[arg(long)]
     pub json: bool,
@@ -394,6 +427,9 @@ pub struct EncodeArgs {
     #[command(flatten)]
     pub read: ReadArgs,
 
+    #[command(flatten)]
+    pub limits: LimitArgs,
+
     /// Print one JSON object instead of a table.
     #[arg(long)]
     pub json: bool,
@@ -413,6 +449,13 @@ pub struct DecodeArgs {
     #[arg(long, short, value_name = "FILE")]
     pub out: PathBuf,
 
+    /// Refuse a stream of an image with more pixels than this [default: 100000000].
+    #[arg(long, value_name = "N")]
+    pub max_pixels: Option<u64>,
+
+    #[command(flatten)]
+    pub limits: LimitArgs,
+
     /// Print one JSON object instead of a table.
     #[arg(long)]
     pub json: bool,
@@ -423,6 +466,9 @@ pub struct InfoArgs {
     /// A codebook or stream file.
     #[arg(value_name = "FILE")]
     pub file: PathBuf,
+
+    #[command(flatten)]
+    pub limits: LimitArgs,
 
     /// Print one JSON object instead of a table.
     #[arg(long)]

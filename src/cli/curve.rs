@@ -8,7 +8,7 @@ use std::time::Instant;
 use anyhow::{Context, Result};
 use serde_json::{json, Value};
 
-use vqforge::atomic::{write_atomic, AtomicFile};
+use vqforge::atomic::write_all_atomic;
 use vqforge::curve::{
     measure_curve, Curve, CurveConfig, CurveEvent, CurvePoint, CurveSource, Fit, Growth,
     ImageSource, InputKind, Quality, RecordSource, Sizes, Target, Verdict, MEMORISING_RATIO,
@@ -92,12 +92,16 @@ pub fn run(a: CurveArgs) -> Result<()> {
         config = config.target(t);
     }
     let config = config.check()?;
+    let limits = super::limits(&a.limits, a.colour.max_pixels)?;
+    if let Some(sizes) = &config.get().sizes {
+        super::check_size("--sizes", sizes.largest(), &limits)?;
+    }
     let source = match kind {
         InputKind::Records => {
             if a.colour.any() {
                 return usage("palette options (--space, --display, --keep, --alpha, --background, --order, --max-pixels) apply to images, not CSV records");
             }
-            let opts = csv_options(&a.read, Some(&a.shape))?;
+            let opts = csv_options(&a.read, Some(&a.shape), &limits)?;
             let tables = read_tables(&a.inputs, &opts)?;
             CurveSource::Records(RecordSource::new(&tables, &opts, &config)?)
         }
@@ -198,18 +202,14 @@ pub(super) fn write_outputs(
         Some(_) => Some(curve_svg(curve, title)?),
         None => None,
     };
+    let mut files: Vec<(&Path, &[u8])> = Vec::new();
     if let (Some(path), Some(bytes)) = (table, &table_bytes) {
-        let mut file =
-            AtomicFile::create(path).with_context(|| format!("writing {}", path.display()))?;
-        std::io::Write::write_all(&mut file, bytes)
-            .with_context(|| format!("writing {}", path.display()))?;
-        file.commit()
-            .with_context(|| format!("writing {}", path.display()))?;
+        files.push((path, bytes));
     }
     if let (Some(path), Some(svg)) = (plot, &svg) {
-        write_atomic(path, svg.as_bytes())
-            .with_context(|| format!("writing {}", path.display()))?;
+        files.push((path, svg.as_bytes()));
     }
+    write_all_atomic(&files).context("writing the curve")?;
     Ok(())
 }
 

@@ -23,13 +23,22 @@ pub fn run(a: DecodeArgs) -> Result<()> {
     }
     let book_name = a.book.display().to_string();
     let stream_name = a.stream.display().to_string();
-    let book = format::read_codebook(&a.book).with_context(|| format!("codebook {book_name}"))?;
-    let (header, indices) =
-        format::read_stream(&a.stream).with_context(|| format!("stream {stream_name}"))?;
+    let limits = super::limits(&a.limits, a.max_pixels)?;
+    let book = format::read_codebook_with(&a.book, &limits)
+        .with_context(|| format!("codebook {book_name}"))?;
+    let (header, indices) = format::read_stream_with(&a.stream, &limits)
+        .with_context(|| format!("stream {stream_name}"))?;
     format::check_stream_matches(&header, &book)
         .with_context(|| format!("stream {stream_name} with codebook {book_name}"))?;
     let out_name = a.out.display().to_string();
     if let Some(info) = header.image {
+        limits
+            .check_pixels(
+                "decoding image",
+                "the image",
+                u64::from(info.width) * u64::from(info.height),
+            )
+            .with_context(|| format!("stream {stream_name}"))?;
         let bytes = super::palette::decode_image(&header, &indices, &book, &a.out)?;
         let seconds = started.elapsed().as_secs_f64();
         if a.json {

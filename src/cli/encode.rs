@@ -22,9 +22,11 @@ pub fn run(a: EncodeArgs) -> Result<()> {
             a.out.display()
         ));
     }
-    let opts = csv_options(&a.read, None)?;
+    let limits = super::limits(&a.limits, a.max_pixels)?;
+    let opts = csv_options(&a.read, None, &limits)?;
     let book_name = a.book.display().to_string();
-    let book = format::read_codebook(&a.book).with_context(|| format!("codebook {book_name}"))?;
+    let book = format::read_codebook_with(&a.book, &limits)
+        .with_context(|| format!("codebook {book_name}"))?;
     if matches!(book.meaning, vqforge::codebook::Meaning::Pixels(_)) {
         return super::palette::encode_image(&a, &book);
     }

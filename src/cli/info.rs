@@ -13,16 +13,22 @@ use super::output::{num, print_json, print_pairs};
 
 pub fn run(a: InfoArgs) -> Result<()> {
     let name = a.file.display().to_string();
-    let bytes = std::fs::read(&a.file).with_context(|| format!("reading {name}"))?;
-    match format::detect_kind(&bytes) {
+    let limits = super::limits(&a.limits, None)?;
+    let kind = format::detect_file_kind(&a.file).with_context(|| format!("reading {name}"))?;
+    let file_bytes = || -> Result<usize> {
+        let len = std::fs::metadata(&a.file)
+            .with_context(|| format!("reading {name}"))?
+            .len();
+        Ok(usize::try_from(len)?)
+    };
+    match kind {
         Some(FileKind::Codebook) => {
-            let book = format::codebook_from_bytes(&bytes).with_context(|| name.clone())?;
-            codebook(&book, bytes.len(), a.json)
+            let book = format::read_codebook_with(&a.file, &limits)?;
+            codebook(&book, file_bytes()?, a.json)
         }
         Some(FileKind::Stream) => {
-            let (header, indices) =
-                format::stream_from_bytes(&bytes).with_context(|| name.clone())?;
-            stream(&header, &indices, bytes.len(), a.json)
+            let (header, indices) = format::read_stream_with(&a.file, &limits)?;
+            stream(&header, &indices, file_bytes()?, a.json)
         }
         None => anyhow::bail!(
             "{name}: not a vqforge codebook or stream file (it does not start with either file's magic tag)"

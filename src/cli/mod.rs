@@ -22,6 +22,36 @@ use clap::Parser;
 
 pub use args::{Cli, Command};
 
+/// The checked limits from the limit flags and, where the command has
+/// one, `--max-pixels` (defaults for those not given).
+pub fn limits(l: &args::LimitArgs, max_pixels: Option<u64>) -> Result<vqforge::limits::Limits> {
+    let mut out = vqforge::limits::Limits::default();
+    if let Some(n) = l.max_vectors {
+        out.max_vectors = n;
+    }
+    if let Some(n) = l.max_codewords {
+        out.max_codewords = n;
+    }
+    if let Some(n) = max_pixels {
+        out.max_pixels = n;
+    }
+    out.check()?;
+    Ok(out)
+}
+
+/// Refuses `--size` above `--max-codewords` (a usage error) before any
+/// input is read.
+/// `flag` names the flag that asked for `size` codewords.
+pub fn check_size(flag: &str, size: usize, limits: &vqforge::limits::Limits) -> Result<()> {
+    if size as u64 > limits.max_codewords {
+        return usage(format!(
+            "{flag} asks for {size} codewords, above the limit of {}; raise it with --max-codewords",
+            limits.max_codewords
+        ));
+    }
+    Ok(())
+}
+
 /// A usage error found by the command line itself (exit code 2).
 #[derive(Debug)]
 pub struct UsageError(pub String);
@@ -82,16 +112,32 @@ pub fn run() -> Result<ExitCode> {
     Ok(ExitCode::SUCCESS)
 }
 
-/// True when `a` and `b` name the same existing file, also when spelt
-/// differently (`./x.csv` and `x.csv`, or through a symbolic link).
+/// True when `a` and `b` name the same file, also when spelt differently
+/// (`./x.csv` and `x.csv`, or through a symbolic link), whether or not the
+/// file exists yet (then their folders are compared, resolved, and their
+/// names).
 pub fn same_file(a: &Path, b: &Path) -> bool {
     if a == b {
         return true;
     }
-    match (std::fs::canonicalize(a), std::fs::canonicalize(b)) {
-        (Ok(a), Ok(b)) => a == b,
+    match (resolved(a), resolved(b)) {
+        (Some(a), Some(b)) => a == b,
         _ => false,
     }
+}
+
+/// The canonical path of `p`, or of its folder joined with its name when
+/// `p` does not exist yet.
+fn resolved(p: &Path) -> Option<std::path::PathBuf> {
+    if let Ok(full) = std::fs::canonicalize(p) {
+        return Some(full);
+    }
+    let name = p.file_name()?;
+    let folder = match p.parent() {
+        Some(f) if !f.as_os_str().is_empty() => f,
+        _ => Path::new("."),
+    };
+    Some(std::fs::canonicalize(folder).ok()?.join(name))
 }
 
 /// The whole error chain on one line: outer context first.

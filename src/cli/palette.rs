@@ -1,13 +1,13 @@
 //! Images: `vqforge palette` (one step to an indexed PNG), and the image
 //! side of `train`, `encode` and `decode`.
 
-use std::path::Path;
+use std::path::{Path, PathBuf};
 use std::time::Instant;
 
 use anyhow::{Context, Result};
 use serde_json::json;
 
-use vqforge::atomic::{write_atomic, AtomicFile};
+use vqforge::atomic::{write_all_atomic, write_atomic, AtomicFile};
 use vqforge::codebook::Codebook;
 use vqforge::colour::{ColourSpace, DisplayFormat};
 use vqforge::export::{
@@ -221,6 +221,22 @@ fn error_pairs(e: &ImageError) -> Vec<(&'static str, String)> {
     ]
 }
 
+/// The indexed PNG of `image` mapped to `palette`, in memory.
+fn png_bytes(image: &RgbaImage, indices: &[u32], palette: &Palette) -> Result<Vec<u8>> {
+    let mut bytes = Vec::new();
+    let alpha = palette.alpha();
+    write_indexed_png(
+        &mut bytes,
+        image.width,
+        image.height,
+        &palette.rgb(),
+        alpha.as_deref(),
+        indices,
+    )?;
+    Ok(bytes)
+}
+
+/// Writes the indexed PNG atomically; returns its bytes.
 pub(super) fn write_png(
     path: &Path,
     image: &RgbaImage,
@@ -228,19 +244,9 @@ pub(super) fn write_png(
     palette: &Palette,
 ) -> Result<u64> {
     let name = path.display().to_string();
-    let mut file = AtomicFile::create(path).with_context(|| format!("writing {name}"))?;
-    let alpha = palette.alpha();
-    write_indexed_png(
-        &mut file,
-        image.width,
-        image.height,
-        &palette.rgb(),
-        alpha.as_deref(),
-        indices,
-    )
-    .with_context(|| format!("writing {name}"))?;
-    file.commit().with_context(|| format!("writing {name}"))?;
-    Ok(std::fs::metadata(path)?.len())
+    let bytes = png_bytes(image, indices, palette).with_context(|| format!("writing {name}"))?;
+    write_atomic(path, &bytes).with_context(|| format!("writing {name}"))?;
+    Ok(bytes.len() as u64)
 }
 
 /// C source for an indexed image (see [`c_source`]): the palette packed in
@@ -288,20 +294,19 @@ pub(super) fn c_text(
     })?)
 }
 
-fn firmware_outputs(
+/// The `--raw` and `--c-source` files asked for, with their bytes.
+fn firmware_files(
     a: &PaletteArgs,
     image: &RgbaImage,
     indices: &[u32],
     palette: &Palette,
     bits: u8,
-) -> Result<()> {
+) -> Result<Vec<(PathBuf, Vec<u8>)>> {
+    let mut files = Vec::new();
     if a.c_source.is_none() && a.raw.is_none() {
-        return Ok(());
+        return Ok(files);
     }
     let packed = pack_rows(indices, image.width, image.height, bits)?;
-    if let Some(raw) = &a.raw {
-        write_atomic(raw, &packed).with_context(|| format!("writing {}", raw.display()))?;
-    }
     if let Some(path) = &a.c_source {
         let stem = path
             .file_stem()
@@ -322,8 +327,40 @@ fn firmware_outputs(
             bits,
             &made_by,
         )?;
-        write_atomic(path, text.as_bytes())
-            .with_context(|| format!("writing {}", path.display()))?;
+        files.push((path.clone(), text.into_bytes()));
+    }
+    if let Some(raw) = &a.raw {
+        files.push((raw.clone(), packed));
+    }
+    Ok(files)
+}
+
+/// Refuses two outputs that name one file, and an output that is the input.
+fn check_outputs(a: &PaletteArgs) -> Result<()> {
+    let outputs: Vec<(&str, &PathBuf)> = [
+        ("--out", Some(&a.out)),
+        ("--c-source", a.c_source.as_ref()),
+        ("--raw", a.raw.as_ref()),
+    ]
+    .into_iter()
+    .filter_map(|(flag, out)| out.map(|o| (flag, o)))
+    .collect();
+    for (i, (flag, out)) in outputs.iter().enumerate() {
+        if same_file(&a.image, out) {
+            return usage(format!(
+                "{flag} {} is the input image; choose another output file",
+                a.image.display()
+            ));
+        }
+        if let Some((other, _)) = outputs[..i]
+            .iter()
+            .find(|(_, earlier)| same_file(earlier, out))
+        {
+            return usage(format!(
+                "{other} and {flag} both name {}; give each output its own file",
+                out.display()
+            ));
+        }
     }
     Ok(())
 }
@@ -332,19 +369,7 @@ fn firmware_outputs(
 pub fn run(a: PaletteArgs) -> Result<()> {
     let started = Instant::now();
     check_png_size(a.size)?;
-    let outputs = [
-        ("--out", Some(&a.out)),
-        ("--c-source", a.c_source.as_ref()),
-        ("--raw", a.raw.as_ref()),
-    ];
-    for (flag, out) in outputs {
-        if out.is_some_and(|out| same_file(&a.image, out)) {
-            return usage(format!(
-                "{flag} {} is the input image; choose another output file",
-                a.image.display()
-            ));
-        }
-    }
+    check_outputs(&a)?;
     let config = palette_config(a.size, &a.colour)?;
     let train = train_config(a.size, &a.kmeans)?.check()?;
     let image = load_image(&a.image, a.colour.max_pixels)?;
@@ -358,8 +383,13 @@ pub fn run(a: PaletteArgs) -> Result<()> {
     let err = measure(&image, &indices, &palette)?;
     bar.finish_and_clear();
     let bits = bit_depth_for(palette.len());
-    let output_bytes = write_png(&a.out, &image, &indices, &palette)?;
-    firmware_outputs(&a, &image, &indices, &palette, bits)?;
+    let png = png_bytes(&image, &indices, &palette)
+        .with_context(|| format!("writing {}", a.out.display()))?;
+    let output_bytes = png.len() as u64;
+    let firmware = firmware_files(&a, &image, &indices, &palette, bits)?;
+    let mut files: Vec<(&Path, &[u8])> = vec![(a.out.as_path(), png.as_slice())];
+    files.extend(firmware.iter().map(|(p, b)| (p.as_path(), b.as_slice())));
+    write_all_atomic(&files).context("writing the outputs")?;
     let seconds = started.elapsed().as_secs_f64();
     notices(&t.notices);
     let layout = palette.layout();
@@ -379,6 +409,7 @@ pub fn run(a: PaletteArgs) -> Result<()> {
             "palette": palette.entries.iter().map(|e| hex([e[0], e[1], e[2]])).collect::<Vec<_>>(),
             "seed": t.report.seed,
             "coarse_start_cells": t.report.coarse_vectors,
+            "sample_draws": t.report.sample_draws,
             "seconds": seconds,
             "notices": t.notices,
         });
@@ -441,11 +472,17 @@ pub fn train_images(a: TrainArgs) -> Result<()> {
     if a.shape.columns.is_some() || a.shape.frame != 1 {
         return usage("--columns and --frame apply to CSV records, not images");
     }
+    let limits = super::limits(&a.limits, a.colour.max_pixels)?;
+    super::check_size("--size", a.size, &limits)?;
     let config = palette_config(a.size, &a.colour)?;
     let train = train_config(a.size, &a.kmeans)?.check()?;
     let mut images = Vec::new();
+    let mut pixels = 0u64;
     for p in &a.inputs {
-        images.push(load_image(p, a.colour.max_pixels)?);
+        let image = load_image(p, a.colour.max_pixels)?;
+        pixels += image.pixels.len() as u64;
+        limits.check_vectors("reading images", "the training set", pixels)?;
+        images.push(image);
     }
     let bar = progress::spinner("fitting palette");
     let observe = spinner_observer(&bar, train.get().restarts);
@@ -471,6 +508,7 @@ pub fn train_images(a: TrainArgs) -> Result<()> {
             "stopped_by": r.stopped_by.as_str(),
             "restarts": r.restart_distortions.len(),
             "coarse_start_cells": r.coarse_vectors,
+            "sample_draws": r.sample_draws,
             "seed": r.seed,
             "space": palette.layout().space.name(),
             "display": palette.layout().display.name(),

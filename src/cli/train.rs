@@ -7,16 +7,23 @@ use serde_json::json;
 
 use vqforge::codebook::Scaling;
 use vqforge::format;
-use vqforge::kmeans::{Seeding, TrainConfig, TrainEvent};
-use vqforge::load::{read_table, CsvOptions, Missing, RecordTable, TimeChoice};
+use vqforge::kmeans::{Sampling, Seeding, TrainConfig, TrainEvent};
+use vqforge::limits::Limits;
+use vqforge::load::{frames_of, read_table, CsvOptions, Missing, RecordTable, TimeChoice};
 use vqforge::records::{train_tables, RecordError};
 
-use super::args::{KmeansArgs, MissingArg, ReadArgs, ScaleArg, SeedingArg, ShapeArgs, TrainArgs};
+use super::args::{
+    KmeansArgs, MissingArg, ReadArgs, SamplingArg, ScaleArg, SeedingArg, ShapeArgs, TrainArgs,
+};
 use super::output::{db, jnum, notices, num, print_json, print_pairs, print_table, secs};
-use super::{progress, same_file, usage};
+use super::{check_size, progress, same_file, usage};
 
 /// CSV reading options from the flags.
-pub fn csv_options(read: &ReadArgs, shape: Option<&ShapeArgs>) -> Result<CsvOptions> {
+pub fn csv_options(
+    read: &ReadArgs,
+    shape: Option<&ShapeArgs>,
+    limits: &Limits,
+) -> Result<CsvOptions> {
     let delimiter = match read.delimiter.as_str() {
         "tab" | "\\t" => b'\t',
         s if s.len() == 1 && s.is_ascii() => s.as_bytes()[0],
@@ -28,6 +35,7 @@ pub fn csv_options(read: &ReadArgs, shape: Option<&ShapeArgs>) -> Result<CsvOpti
     };
     let mut o = CsvOptions::new()
         .delimiter(delimiter)
+        .max_vectors(limits.max_vectors)
         .missing(match read.missing {
             MissingArg::Error => Missing::Error,
             MissingArg::Skip => Missing::Skip,
@@ -51,13 +59,24 @@ pub fn csv_options(read: &ReadArgs, shape: Option<&ShapeArgs>) -> Result<CsvOpti
     Ok(o)
 }
 
-/// Reads every input as one CSV table.
+/// Reads every input as one CSV table; all of them together may give at
+/// most `opts.max_vectors` vectors.
 pub fn read_tables(inputs: &[std::path::PathBuf], opts: &CsvOptions) -> Result<Vec<RecordTable>> {
     let mut tables = Vec::new();
+    let mut vectors = 0u64;
     for input in inputs {
         let name = input.display().to_string();
         let file = std::fs::File::open(input).with_context(|| format!("opening input {name}"))?;
-        tables.push(read_table(std::io::BufReader::new(file), &name, opts)?);
+        let table = read_table(std::io::BufReader::new(file), &name, opts)?;
+        vectors += frames_of(table.rows(), opts.frame) as u64;
+        tables.push(table);
+    }
+    if tables.len() > 1 {
+        let limits = Limits {
+            max_vectors: opts.max_vectors,
+            ..Limits::default()
+        };
+        limits.check_vectors("reading records", "the training set", vectors)?;
     }
     Ok(tables)
 }
@@ -73,7 +92,11 @@ pub fn train_config(size: usize, k: &KmeansArgs) -> Result<TrainConfig> {
         .restarts(k.restarts)
         .max_iterations(k.max_iter)
         .tolerance(k.tolerance)
-        .seed(k.seed))
+        .seed(k.seed)
+        .sampling(match k.sampling {
+            SamplingArg::Auto => Sampling::Auto,
+            SamplingArg::Never => Sampling::Never,
+        }))
 }
 
 /// Per-column error as JSON.
@@ -141,7 +164,9 @@ pub fn run(a: TrainArgs) -> Result<()> {
         return usage("palette options (--space, --display, --keep, --alpha, --background, --order, --max-pixels) apply to images, not CSV records");
     }
     let started = Instant::now();
-    let opts = csv_options(&a.read, Some(&a.shape))?;
+    let limits = super::limits(&a.limits, None)?;
+    check_size("--size", a.size, &limits)?;
+    let opts = csv_options(&a.read, Some(&a.shape), &limits)?;
     let config = train_config(a.size, &a.kmeans)?.check()?;
     let tables = read_tables(&a.inputs, &opts)?;
     let bar = progress::spinner("training");
@@ -184,6 +209,7 @@ pub fn run(a: TrainArgs) -> Result<()> {
             "restarts": r.restart_distortions.len(),
             "best_restart": r.best_restart,
             "coarse_start_cells": r.coarse_vectors,
+            "sample_draws": r.sample_draws,
             "seeding": r.seeding.as_str(),
             "seed": r.seed,
             "columns": columns_json(&t.error),

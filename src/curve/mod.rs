@@ -96,6 +96,17 @@ pub enum Target {
 }
 
 impl Target {
+    /// The mse a distortion target amounts to, given the signal power its
+    /// decibels are relative to (records: the variance per value; images:
+    /// the peak 255²); `None` for targets not on the mse.
+    fn as_mse(self, signal: f64) -> Option<f64> {
+        match self {
+            Target::Mse(x) => Some(x),
+            Target::SnrDb(db) | Target::PsnrDb(db) => Some(signal / 10f64.powf(db / 10.0)),
+            Target::DeltaE2000(_) | Target::MaxBytes(_) => None,
+        }
+    }
+
     /// Refuses a target that does not apply to the input kind.
     pub fn check_kind(&self, kind: InputKind) -> Result<()> {
         let refuse = |m: &str| Err(Error::new(STAGE, ErrorKind::InvalidParameter(m.into())));
@@ -573,11 +584,7 @@ pub fn measure_curve(
                 train: &config.train,
                 measure: &measure,
             };
-            let target_mse = match config.config.target {
-                Some(Target::Mse(x)) => Some(x),
-                Some(Target::SnrDb(db)) => Some(r.variance / 10f64.powf(db / 10.0)),
-                _ => None,
-            };
+            let target_mse = config.config.target.and_then(|t| t.as_mse(r.variance));
             let facts = Facts {
                 kind: InputKind::Records,
                 dimension: r.dimension(),
@@ -609,11 +616,7 @@ pub fn measure_curve(
                 train: &config.train,
                 measure: &measure,
             };
-            let target_mse = match config.config.target {
-                Some(Target::Mse(x)) => Some(x),
-                Some(Target::PsnrDb(db)) => Some(255.0 * 255.0 / 10f64.powf(db / 10.0)),
-                _ => None,
-            };
+            let target_mse = config.config.target.and_then(|t| t.as_mse(255.0 * 255.0));
             let facts = Facts {
                 kind: InputKind::Images,
                 dimension: i.dimension(),

@@ -362,14 +362,14 @@ fn tile_scores(tile: &[f32], panel: &[f32], norms: &[f32; LANES]) -> [[f32; LANE
 /// where lane l of `lo` and `hi` holds the least and second least of the
 /// scores seen in that lane: the two least overall are among them.
 fn least_two(lo: &[f32; LANES], hi: &[f32; LANES]) -> (f32, f32) {
+    // Selects rather than branches: which lane holds the least is random,
+    // so branches on it would be mispredicted half the time.
     let (mut first, mut second) = (f32::INFINITY, f32::INFINITY);
-    for &v in lo.iter().chain(hi) {
-        if v < first {
-            second = first;
-            first = v;
-        } else if v < second {
-            second = v;
-        }
+    for (&l, &h) in lo.iter().zip(hi) {
+        let above = if l < first { first } else { l };
+        second = if above < second { above } else { second };
+        second = if h < second { h } else { second };
+        first = if l < first { l } else { first };
     }
     (first, second)
 }

@@ -276,3 +276,24 @@ fn round_up_never_rounds_down() {
         assert!(f64::from(down) < v, "{v} -> {r}");
     }
 }
+
+#[test]
+fn auto_answers_batches_with_the_tree_only_in_low_dimensions() {
+    let mut rng = SeededRng::new(76);
+    for (d, k, single, batch) in [
+        (3, 256, SearchMethod::KdTree, SearchMethod::KdTree),
+        (5, 256, SearchMethod::KdTree, SearchMethod::Scan),
+        (16, 256, SearchMethod::Scan, SearchMethod::Scan),
+        (3, 8, SearchMethod::Scan, SearchMethod::Scan),
+    ] {
+        let e = Encoder::new(&values(&mut rng, Data::Normal, k, d, &[]), d).unwrap();
+        assert_eq!(
+            (e.method(), e.batch_method()),
+            (single, batch),
+            "d={d} k={k}"
+        );
+    }
+    let cw = values(&mut rng, Data::Normal, 64, 16, &[]);
+    let tree = Encoder::with_method(&cw, 16, SearchMethod::KdTree).unwrap();
+    assert_eq!(tree.batch_method(), SearchMethod::KdTree);
+}

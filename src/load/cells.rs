@@ -62,13 +62,29 @@ pub(super) struct LineCounter<R> {
     offset: u64,
     newlines: VecDeque<u64>,
     lines_before: u64,
+    /// Whether an odd number of `"` bytes has been read: every quoted
+    /// field adds two, and a doubled quote inside one adds two more.
+    odd_quotes: bool,
+    /// Whether a line break and then more than white space came after the
+    /// last `"` byte read.
+    lines_after_quote: bool,
+    break_after_quote: bool,
 }
 
 impl<R: Read> Read for LineCounter<R> {
     fn read(&mut self, buf: &mut [u8]) -> io::Result<usize> {
         let n = self.inner.read(buf)?;
-        for (i, _) in buf[..n].iter().enumerate().filter(|(_, &b)| b == b'\n') {
-            self.newlines.push_back(self.offset + i as u64);
+        for (i, &b) in buf[..n].iter().enumerate() {
+            if b == b'\n' {
+                self.newlines.push_back(self.offset + i as u64);
+                self.break_after_quote = true;
+            } else if b == b'"' {
+                self.odd_quotes = !self.odd_quotes;
+                self.break_after_quote = false;
+                self.lines_after_quote = false;
+            } else if self.break_after_quote && !b.is_ascii_whitespace() {
+                self.lines_after_quote = true;
+            }
         }
         self.offset += n as u64;
         Ok(n)
@@ -97,6 +113,9 @@ impl<R> LineCounter<R> {
 pub(super) struct CsvSource<R> {
     reader: csv::Reader<LineCounter<R>>,
     pub(super) file: String,
+    /// The line of the last record read and whether a field of it spans
+    /// several lines (what a quote that is never closed produces).
+    last: Option<(u64, bool)>,
 }
 
 impl<R: Read> CsvSource<R> {
@@ -106,6 +125,9 @@ impl<R: Read> CsvSource<R> {
             offset: 0,
             newlines: VecDeque::new(),
             lines_before: 0,
+            odd_quotes: false,
+            lines_after_quote: false,
+            break_after_quote: false,
         };
         // Records end at LF only; a CR before it stays in the last field and
         // is trimmed with the other surrounding white space.
@@ -118,6 +140,7 @@ impl<R: Read> CsvSource<R> {
         CsvSource {
             reader,
             file: file.to_string(),
+            last: None,
         }
     }
 
@@ -135,14 +158,41 @@ impl<R: Read> CsvSource<R> {
                 error_at(&self.file, line, None, kind)
             })?;
             if !more {
-                return Ok(None);
+                return self.unclosed_quote();
             }
             let start = record.position().map_or(0, |p| p.byte());
             let line = self.reader.get_mut().line_at(start);
+            self.last = Some((line, record.iter().any(|f| f.contains(&b'\n'))));
             let blank = record.len() == 1 && record[0].iter().all(u8::is_ascii_whitespace);
             if !blank {
                 return Ok(Some(line));
             }
+        }
+    }
+}
+
+impl<R: Read> CsvSource<R> {
+    /// At the end of the input: an error when a quote was never closed.
+    /// The csv reader then takes the rest of the file as one field, so the
+    /// signs are: the quotes do not pair up, the last record has a field
+    /// that spans lines, and more lines follow the last quote. A quote
+    /// inside an unquoted field (`5" disc`) is read as a character and
+    /// does not by itself count as unclosed.
+    fn unclosed_quote(&mut self) -> Result<Option<u64>> {
+        let counter = self.reader.get_ref();
+        let unclosed = counter.odd_quotes && counter.lines_after_quote;
+        match self.last {
+            Some((line, true)) if unclosed => Err(error_at(
+                &self.file,
+                Some(line),
+                None,
+                ErrorKind::Parse(
+                    "a quoted field is never closed: it runs to the end of the file; \
+                     add the missing '\"'"
+                        .into(),
+                ),
+            )),
+            _ => Ok(None),
         }
     }
 }
@@ -191,6 +241,23 @@ pub(super) fn read_header<R: Read>(source: &mut CsvSource<R>) -> Result<Header> 
             ErrorKind::Shape("the file is empty".into()),
         ));
     };
+    let first = record.get(0).unwrap_or_default();
+    let refuse = |why: String| Err(error_at(&file, None, None, ErrorKind::Shape(why)));
+    if first.starts_with(&[0xFF, 0xFE]) || first.starts_with(&[0xFE, 0xFF]) {
+        return refuse(
+            "the file is UTF-16 text (it starts with a UTF-16 byte-order mark); save it as UTF-8"
+                .into(),
+        );
+    }
+    if let Some(kind) = crate::format::detect_kind(first) {
+        let noun = match kind {
+            crate::format::FileKind::Codebook => "codebook",
+            crate::format::FileKind::Stream => "stream",
+        };
+        return refuse(format!(
+            "this is a vqforge {noun} file, not a CSV table of records"
+        ));
+    }
     let mut names: Vec<String> = Vec::with_capacity(record.len());
     for j in 0..record.len() {
         let number = (j + 1).to_string();
@@ -409,6 +476,13 @@ fn number_cell(text: &str) -> std::result::Result<f64, String> {
     match text.parse::<f64>() {
         Ok(v) if v.is_finite() => Ok(v),
         Ok(_) => Err(format!("\"{text}\" is not a finite number")),
+        Err(_) if text.contains('\n') => {
+            let start: String = text.chars().take_while(|&c| c != '\n').take(40).collect();
+            Err(format!(
+                "the cell \"{start}…\" runs over several lines, so it is not a number; \
+                 a quote may be missing its closing '\"'"
+            ))
+        }
         Err(_) => Err(format!("\"{text}\" is not a number")),
     }
 }

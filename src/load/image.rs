@@ -38,7 +38,7 @@ pub struct ImageLimits {
 impl ImageLimits {
     /// The default for [`ImageLimits::max_pixels`]: 100 million pixels
     /// (400 MB as RGBA).
-    pub const DEFAULT_MAX_PIXELS: u64 = 100_000_000;
+    pub const DEFAULT_MAX_PIXELS: u64 = crate::limits::Limits::DEFAULT_MAX_PIXELS;
 }
 
 impl Default for ImageLimits {
@@ -250,7 +250,8 @@ pub fn read_image(bytes: &[u8], source_name: &str, limits: &ImageLimits) -> Resu
     // `into_rgba8` keeps the buffer when the image already is 8-bit RGBA and
     // otherwise converts (16-bit → 8-bit by rounding, grey → R = G = B).
     let raw = decoded.into_rgba8().into_raw();
-    let mut out = Vec::with_capacity(raw.len() / 4);
+    let mut out = crate::limits::vec_with_capacity(raw.len() / 4, STAGE, "the image")
+        .map_err(|e| e.in_file(source_name))?;
     out.extend(raw.chunks_exact(4).map(|p| [p[0], p[1], p[2], p[3]]));
     Ok(RgbaImage {
         width,

@@ -4,6 +4,7 @@
 
 use crate::codebook::Scaling;
 use crate::error::{Error, ErrorKind, Result};
+use crate::limits::Limits;
 
 /// What to do with a row whose chosen cell is empty, not a number or not
 /// finite.
@@ -41,6 +42,7 @@ pub enum TimeChoice {
 /// | `missing` | [`Missing::Error`] |
 /// | `time` | [`TimeChoice::Auto`] |
 /// | `delimiter` | `b','` |
+/// | `max_vectors` | [`Limits::DEFAULT_MAX_VECTORS`] |
 #[derive(Debug, Clone, PartialEq)]
 pub struct CsvOptions {
     /// Value columns by header name, in vector order. `None` picks every
@@ -57,6 +59,10 @@ pub struct CsvOptions {
     pub time: TimeChoice,
     /// Field separator, one ASCII byte (e.g. `b';'` or `b'\t'`).
     pub delimiter: u8,
+    /// The most vectors (frames of kept rows) one file may give; reading
+    /// stops with an [`ErrorKind::Limit`] error naming `--max-vectors`
+    /// as soon as the file gives more.
+    pub max_vectors: u64,
 }
 
 impl Default for CsvOptions {
@@ -68,6 +74,7 @@ impl Default for CsvOptions {
             missing: Missing::Error,
             time: TimeChoice::Auto,
             delimiter: b',',
+            max_vectors: Limits::DEFAULT_MAX_VECTORS,
         }
     }
 }
@@ -118,6 +125,35 @@ impl CsvOptions {
         self
     }
 
+    /// Sets [`CsvOptions::max_vectors`].
+    pub fn max_vectors(mut self, vectors: u64) -> Self {
+        self.max_vectors = vectors;
+        self
+    }
+
+    /// Fails with [`ErrorKind::Limit`] when `rows` kept rows make more than
+    /// [`CsvOptions::max_vectors`] vectors.
+    pub(super) fn check_rows(&self, rows: u64, file: &str, line: u64) -> Result<()> {
+        let vectors = rows.div_ceil(self.frame.max(1) as u64);
+        if vectors <= self.max_vectors {
+            return Ok(());
+        }
+        Err(Error::new(
+            super::STAGE,
+            ErrorKind::Limit(format!(
+                "the table holds more than {} vectors (the limit, reached at this line); \
+                 raise it with --max-vectors",
+                self.max_vectors
+            )),
+        )
+        .at(crate::error::Position {
+            file: Some(file.to_string()),
+            line: Some(line),
+            column: None,
+            record: None,
+        }))
+    }
+
     /// Checks the settings on their own (before any input is seen): a frame
     /// of 0 rows is [`ErrorKind::ZeroFrame`]; an empty or repeating column
     /// list, a time column that is also a value column, and a delimiter that
@@ -133,6 +169,11 @@ impl CsvOptions {
         };
         if self.frame == 0 {
             return Err(Error::new("checking record options", ErrorKind::ZeroFrame));
+        }
+        if self.max_vectors == 0 {
+            return invalid(
+                "--max-vectors must be at least 1, got 0 (it would refuse every input)".into(),
+            );
         }
         if let Some(columns) = &self.columns {
             if columns.is_empty() {

@@ -10,6 +10,7 @@ use csv::ByteRecord;
 
 use crate::codebook::RecordLayout;
 use crate::error::Result;
+use crate::limits;
 use crate::vectors::VectorSet;
 
 use super::cells::{
@@ -18,6 +19,7 @@ use super::cells::{
 use super::frame::{check_columns, frame_vectors};
 use super::options::CsvOptions;
 use super::time::{AxisCheck, TimeInfo};
+use super::STAGE;
 
 /// Vectors per chunk unless [`RecordStream::with_chunk_vectors`] says otherwise.
 pub const DEFAULT_CHUNK_VECTORS: usize = 65_536;
@@ -70,6 +72,7 @@ pub struct RecordStream<R> {
     dropped: u64,
     axis: AxisCheck,
     notices: Vec<String>,
+    options: CsvOptions,
 }
 
 impl<R: Read> RecordStream<R> {
@@ -117,6 +120,7 @@ impl<R: Read> RecordStream<R> {
             dropped: 0,
             axis: AxisCheck::default(),
             notices: plan.notices,
+            options: effective,
         })
     }
 
@@ -139,6 +143,13 @@ impl<R: Read> RecordStream<R> {
         result
     }
 
+    /// Fails once the kept rows (`in_chunk` of them in the chunk being
+    /// read) make more vectors than the options allow.
+    fn max_vectors_check(&self, in_chunk: usize) -> Result<()> {
+        self.options
+            .check_rows(self.kept + in_chunk as u64, &self.source.file, self.line)
+    }
+
     fn read_chunk(&mut self) -> Result<Option<RecordChunk>> {
         let width = self.layout.columns.len();
         let target = self.chunk_vectors.saturating_mul(self.layout.frame);
@@ -146,9 +157,11 @@ impl<R: Read> RecordStream<R> {
         let mut times = self.rows.time_name().map(|_| Vec::new());
         let mut rows = 0usize;
         while rows < target && self.waiting {
+            limits::reserve(&mut values, width, STAGE, "the chunk of records")?;
             match self.rows.read(&self.record, self.line, &mut values)? {
                 Row::Kept(time) => {
                     rows += 1;
+                    self.max_vectors_check(rows)?;
                     if let (Some(times), Some(time)) = (times.as_mut(), time) {
                         times.push(time.value);
                         self.axis.push(time.value);

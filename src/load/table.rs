@@ -8,9 +8,11 @@ use std::io::Read;
 
 use crate::codebook::TimeFormat;
 use crate::error::Result;
+use crate::limits;
 
 use super::cells::{all_dropped, dropped_notice, read_header, start, CsvSource, Row, Started};
 use super::options::CsvOptions;
+use super::STAGE;
 
 /// The time of every kept row, as read.
 #[derive(Debug, Clone, PartialEq)]
@@ -148,13 +150,19 @@ pub fn read_table<R: Read>(reader: R, source_name: &str, opts: &CsvOptions) -> R
     let mut raw = Vec::new();
     let mut times = Vec::new();
     let mut dropped = 0u64;
+    let mut kept = 0u64;
+    let width = plan.value_index.len();
     loop {
+        limits::reserve(&mut values, width, STAGE, "the table")?;
         match rows.read(&record, line, &mut values)? {
-            Row::Kept(Some(time)) => {
-                times.push(time.value);
-                raw.push(time.text.to_string());
+            Row::Kept(time) => {
+                kept += 1;
+                opts.check_rows(kept, source_name, line)?;
+                if let Some(time) = time {
+                    times.push(time.value);
+                    raw.push(time.text.to_string());
+                }
             }
-            Row::Kept(None) => {}
             Row::Dropped => dropped += 1,
         }
         match source.next(&mut record)? {

@@ -14,6 +14,10 @@ fn read_with(text: &str, opts: CsvOptions) -> crate::Result<RecordTable> {
     read_table(text.as_bytes(), "log.csv", &opts)
 }
 
+fn read_bytes(bytes: &[u8]) -> crate::Result<RecordTable> {
+    read_table(bytes, "log.csv", &CsvOptions::new())
+}
+
 fn message(result: crate::Result<RecordTable>) -> String {
     result.unwrap_err().to_string()
 }
@@ -405,4 +409,60 @@ fn bundled_samples_read_cleanly() {
     let wine = include_str!("../../tests/data/wine.csv");
     let t = read(wine).unwrap();
     assert_eq!((t.rows(), t.columns.len()), (178, 13));
+}
+
+#[test]
+fn a_quote_never_closed_is_refused_at_its_line() {
+    // The quote opened on line 3 swallows the rest of the file into
+    // column "b", which the first data row made a text column.
+    let text = "a,b\n1,x\n2,\"y\n3,z\n4,w\n";
+    let e = read(text).unwrap_err();
+    assert_eq!(e.position().line, Some(3));
+    assert!(
+        e.to_string().contains("a quoted field is never closed"),
+        "{e}"
+    );
+    // In a value column the cell itself says what probably happened.
+    let e = read("a,b\n1,2\n3,\"4\n5,6\n").unwrap_err();
+    assert_eq!(e.position().line, Some(3));
+    assert!(e.to_string().contains("runs over several lines"), "{e}");
+    // A quote inside an unquoted field is a character, and quoted line
+    // breaks that are closed are fine.
+    let t = read("a,note\n1,5\" disc\n2,\"two\nlines\"\n").unwrap();
+    assert_eq!(t.values, [1.0, 2.0]);
+    let t = read("a,note\n1,5\" disc\n2,\"two\nlines\"\n3,x\n").unwrap();
+    assert_eq!(t.values, [1.0, 2.0, 3.0]);
+}
+
+#[test]
+fn utf16_and_vqforge_files_are_named_for_what_they_are() {
+    let e = read_bytes(b"\xff\xfea\x00,\x00b\x00\n\x00").unwrap_err();
+    assert!(e.to_string().contains("UTF-16"), "{e}");
+    let e = read_bytes(b"VQFORGEB\x01\x00\x10\x00\x00\x00\x0d\x04").unwrap_err();
+    assert!(
+        e.to_string()
+            .contains("a vqforge codebook file, not a CSV table"),
+        "{e}"
+    );
+}
+
+#[test]
+fn reading_stops_at_the_vector_limit() {
+    let text = "a\n1\n2\n3\n4\n5\n";
+    let opts = || CsvOptions::new().max_vectors(2);
+    let e = read_with(text, opts()).unwrap_err();
+    assert!(matches!(e.kind(), ErrorKind::Limit(_)), "{e}");
+    assert_eq!(e.position().line, Some(4));
+    assert!(e.to_string().contains("more than 2 vectors"), "{e}");
+    assert!(
+        e.to_string().ends_with("raise it with --max-vectors"),
+        "{e}"
+    );
+    // Vectors are frames: 5 rows in frames of 3 make 2 vectors.
+    assert_eq!(read_with(text, opts().frame(3)).unwrap().rows(), 5);
+    assert!(CsvOptions::new()
+        .max_vectors(0)
+        .check()
+        .unwrap_err()
+        .is_usage());
 }

@@ -152,6 +152,7 @@ pub fn fails(dir: &TempDir, args: &[&str], code: i32, phrases: &[&str]) {
     );
     assert!(lines[0].starts_with("error: "), "{stderr}");
     assert!(!stderr.contains("panicked"), "{stderr}");
+    assert!(!stderr.contains("RUST_BACKTRACE"), "{stderr}");
     for phrase in phrases {
         assert!(
             lines[0].contains(phrase),
