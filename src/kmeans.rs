@@ -643,13 +643,15 @@ pub fn train_constrained(
 }
 
 /// Whether single-vector moves over `vectors` with `k` codewords fit in
-/// [`MOVE_REFINE_BUDGET`] (n·k·d).
+/// [`MOVE_REFINE_BUDGET`] (n·k·d) and their neighbour table in
+/// [`MOVE_MAX_CODEWORDS`].
 pub(crate) fn moves_affordable(vectors: &VectorSet, k: usize) -> bool {
-    vectors
-        .len()
-        .saturating_mul(k)
-        .saturating_mul(vectors.dimension())
-        <= MOVE_REFINE_BUDGET
+    k <= MOVE_MAX_CODEWORDS
+        && vectors
+            .len()
+            .saturating_mul(k)
+            .saturating_mul(vectors.dimension())
+            <= MOVE_REFINE_BUDGET
 }
 
 /// The end of every run: single-vector moves when the work is affordable
@@ -1517,6 +1519,12 @@ fn lloyd_with(
 /// costs about as much as a Lloyd iteration and cannot run in parallel.
 pub const MOVE_REFINE_BUDGET: usize = 1 << 27;
 
+/// Most codewords for which [`train`] polishes with single-vector moves:
+/// they keep a table of every codeword's neighbours, k·(k−1) entries of
+/// 16 bytes (67 MB at this size; 2 GB at the 11 000 codewords the budget
+/// alone would allow on one-component data).
+pub const MOVE_MAX_CODEWORDS: usize = 2048;
+
 /// Passes over the data [`train`] allows the single-vector moves. Most of
 /// the gain comes in the first few passes; later ones move a handful of
 /// vectors each at the full cost of a pass.
@@ -1952,6 +1960,15 @@ mod tests {
                 );
             }
         }
+    }
+
+    #[test]
+    fn moves_stay_within_the_codeword_cap() {
+        // 3 000 values: n·k·d is far inside the budget for either size, but
+        // above the cap the neighbour table would be too large.
+        let v = VectorSet::new(1, (0..3000).map(|i| i as f32).collect()).unwrap();
+        assert!(moves_affordable(&v, MOVE_MAX_CODEWORDS));
+        assert!(!moves_affordable(&v, MOVE_MAX_CODEWORDS + 1));
     }
 
     #[test]
