@@ -1722,8 +1722,9 @@ fn refine_by_moves_with(
     codewords[..fixed * d].copy_from_slice(&start.codewords[..fixed * d]);
     let mut polished = lloyd_core(vectors, &codewords, opts, constraint, &|_, _| {})?;
     if constraint.snap.is_none() && polished.distortion > start.distortion {
-        // Rounding could in principle undo a rounding-level gain: keep the better.
-        polished = start.clone();
+        // Rounding could in principle undo a rounding-level gain: keep the
+        // start as it was (its iterations and history counted once).
+        return Ok(start.clone());
     }
     polished.iterations += start.iterations;
     let mut history = start.history.clone();
