@@ -20,7 +20,7 @@ use std::time::Instant;
 use serde_json::json;
 use vqforge::codebook::{Codebook, Meaning, TrainingFacts};
 use vqforge::colour::{ColourSpace, DisplayFormat};
-use vqforge::encode::Encoder;
+use vqforge::encode::{Encoder, SearchMethod};
 use vqforge::kmeans::{lloyd, LloydOptions};
 use vqforge::kmeans::{Seeding, StopReason};
 use vqforge::load::RgbaImage;
@@ -71,7 +71,10 @@ fn main() {
             let encoder = Encoder::new(&second, dim).expect("valid codebook");
             let indices = encoder.encode(&data).expect("same dimension");
             let seconds = started.elapsed().as_secs_f64();
-            let method = format!("{:?}", encoder.method());
+            let method = match encoder.batch_method() {
+                SearchMethod::Scan => "blocked kernel".to_string(),
+                other => format!("{other:?}"),
+            };
             report(&args[4], &indices, seconds, &method, threads);
         }
         "pixels" => {
