@@ -200,9 +200,7 @@ impl Drop for AtomicFile {
 
 /// Replaces the file at `path` with `bytes`, atomically (see [`AtomicFile`]).
 pub fn write_atomic(path: impl AsRef<Path>, bytes: &[u8]) -> Result<()> {
-    let mut file = AtomicFile::create(path)?;
-    file.write_all(bytes).map_err(|e| file.error(e))?;
-    file.commit()
+    write_all_atomic(&[(path.as_ref(), bytes)])
 }
 
 /// Replaces several files together: every temporary file is created and

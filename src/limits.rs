@@ -162,33 +162,30 @@ pub fn reserve<T>(
     stage: &'static str,
     what: &str,
 ) -> Result<()> {
-    v.try_reserve(additional).map_err(|_| {
-        let bytes = (v.len() as u128 + additional as u128) * std::mem::size_of::<T>() as u128;
-        Error::new(
-            stage,
-            ErrorKind::Limit(format!(
-                "{what} needs about {} of memory, more than could be allocated",
-                human_bytes(bytes)
-            )),
-        )
-    })
+    let items = v.len() as u128 + additional as u128;
+    v.try_reserve(additional)
+        .map_err(|_| out_of_memory::<T>(items, stage, what))
 }
 
 /// An empty vector with room for exactly `capacity` items, or the error of
 /// [`reserve`].
 pub fn vec_with_capacity<T>(capacity: usize, stage: &'static str, what: &str) -> Result<Vec<T>> {
     let mut v = Vec::new();
-    v.try_reserve_exact(capacity).map_err(|_| {
-        let bytes = capacity as u128 * std::mem::size_of::<T>() as u128;
-        Error::new(
-            stage,
-            ErrorKind::Limit(format!(
-                "{what} needs about {} of memory, more than could be allocated",
-                human_bytes(bytes)
-            )),
-        )
-    })?;
+    v.try_reserve_exact(capacity)
+        .map_err(|_| out_of_memory::<T>(capacity as u128, stage, what))?;
     Ok(v)
+}
+
+/// The error of an allocation of `items` values of `T` that could not be made.
+fn out_of_memory<T>(items: u128, stage: &'static str, what: &str) -> Error {
+    let bytes = items * std::mem::size_of::<T>() as u128;
+    Error::new(
+        stage,
+        ErrorKind::Limit(format!(
+            "{what} needs about {} of memory, more than could be allocated",
+            human_bytes(bytes)
+        )),
+    )
 }
 
 #[cfg(test)]
