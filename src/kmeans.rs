@@ -752,17 +752,11 @@ pub fn seed_kmeans_plus_plus_around(
     rng: &mut SeededRng,
     fixed: &[f32],
 ) -> Vec<f32> {
-    let n = vectors.len();
     let d = vectors.dimension();
     let candidates = 2 + (k as f64).ln().floor() as usize;
     let mut centres: Vec<f32> = Vec::with_capacity(k * d);
     if fixed.is_empty() {
-        let wprefix: Vec<f64> = (0..n)
-            .scan(0.0, |s, i| {
-                *s += vectors.weight(i);
-                Some(*s)
-            })
-            .collect();
+        let wprefix = vectors.cumulative_weights();
         centres.extend_from_slice(vectors.row(rng.draw(&wprefix)));
     } else {
         centres.extend_from_slice(fixed);

@@ -202,17 +202,23 @@ impl VectorSet {
         }
     }
 
+    /// Running sums of the weights, row by row (for drawing rows with
+    /// probability ∝ weight).
+    pub(crate) fn cumulative_weights(&self) -> Vec<f64> {
+        (0..self.len())
+            .scan(0.0, |s, i| {
+                *s += self.weight(i);
+                Some(*s)
+            })
+            .collect()
+    }
+
     /// A seeded sample of `draws` rows drawn with replacement, each with
     /// probability ∝ its weight (an independent sample of the data the
     /// weighted rows stand for); a row drawn several times appears once,
     /// weighted by its count. Rows keep their order.
     pub fn sampled(&self, draws: usize, rng: &mut crate::rng::SeededRng) -> VectorSet {
-        let prefix: Vec<f64> = (0..self.len())
-            .scan(0.0, |s, i| {
-                *s += self.weight(i);
-                Some(*s)
-            })
-            .collect();
+        let prefix = self.cumulative_weights();
         let mut picks: Vec<usize> = (0..draws).map(|_| rng.draw(&prefix)).collect();
         picks.sort_unstable();
         let mut data = Vec::new();
