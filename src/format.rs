@@ -365,12 +365,14 @@ fn open_file<'a>(
 /// scales: a table of a million columns with 40-byte names stays below it.
 const MAX_HEADER_LEN: u32 = 64 << 20;
 
-/// Reads the file at `path` in two steps, so that nothing larger than the
-/// header is held before the header's numbers are checked: first the
-/// prefix and the header, with the checksum computed while streaming
-/// through the rest; then `header_ok` with the header and the payload's
-/// length (it parses the header and checks it against the payload length
-/// and the limits); only then the whole file. Errors name no file.
+/// Reads the file at `path` so that nothing larger than the header is held
+/// before the header's numbers are checked: first the prefix and the
+/// header, which `header_ok` parses and checks against the payload's length
+/// and the limits; if they pass, the whole file, read once (the caller's
+/// decoding verifies the checksum). If they do not, the rest is streamed
+/// through the checksum without being kept, so that a damaged file gets the
+/// checksum's message first, as from the in-memory readers. Errors name no
+/// file.
 fn read_file_checked(
     path: &Path,
     kind: FileKind,
@@ -401,24 +403,26 @@ fn read_file_checked(
     let mut header = vec![0; header_len as usize];
     file.read_exact(&mut header).map_err(io)?;
     let payload = len - (FIXED_LEN as u64 + u64::from(header_len));
-    let mut crc = crc32fast::Hasher::new();
-    crc.update(&head);
-    crc.update(&header);
-    let mut rest = (&mut file).take(payload);
-    let mut buffer = vec![0; 1 << 16];
-    loop {
-        let n = rest.read(&mut buffer).map_err(io)?;
-        if n == 0 {
-            break;
+    if let Err(refused) = header_ok(&header, payload) {
+        let mut crc = crc32fast::Hasher::new();
+        crc.update(&head);
+        crc.update(&header);
+        let mut rest = (&mut file).take(payload);
+        let mut buffer = vec![0; 1 << 16];
+        loop {
+            let n = rest.read(&mut buffer).map_err(io)?;
+            if n == 0 {
+                break;
+            }
+            crc.update(&buffer[..n]);
         }
-        crc.update(&buffer[..n]);
+        let mut stored = [0; CRC_LEN];
+        file.read_exact(&mut stored).map_err(io)?;
+        if crc.finalize() != u32::from_le_bytes(stored) {
+            return Err(checksum_error(stage, len, &header, payload_len));
+        }
+        return Err(refused);
     }
-    let mut stored = [0; CRC_LEN];
-    file.read_exact(&mut stored).map_err(io)?;
-    if crc.finalize() != u32::from_le_bytes(stored) {
-        return Err(checksum_error(stage, len, &header, payload_len));
-    }
-    header_ok(&header, payload)?;
     let size = usize::try_from(len).map_err(|_| {
         Error::new(
             stage,
