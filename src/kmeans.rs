@@ -1118,6 +1118,12 @@ struct Neighbours {
     k: usize,
 }
 
+/// The order of a neighbour row: by distance, then index (a total order,
+/// so every sort of a row gives the same result).
+fn by_gap(x: &(f64, u32), y: &(f64, u32)) -> std::cmp::Ordering {
+    x.0.total_cmp(&y.0).then(x.1.cmp(&y.1))
+}
+
 impl Neighbours {
     fn new(codewords: &[f32], d: usize) -> Self {
         let k = codewords.len() / d;
@@ -1139,7 +1145,7 @@ impl Neighbours {
                 for (slot, j) in row.iter_mut().zip(others) {
                     *slot = (gap(a, j), j as u32);
                 }
-                row.sort_unstable_by(|x, y| x.0.total_cmp(&y.0).then(x.1.cmp(&y.1)));
+                row.sort_unstable_by(by_gap);
             });
         }
         Neighbours { rows, k }
@@ -1161,7 +1167,7 @@ impl Neighbours {
                         let j = *j as usize;
                         *gap = exact_sq(ca, &codewords[j * d..(j + 1) * d]).sqrt();
                     }
-                    row.sort_by(|x, y| x.0.total_cmp(&y.0).then(x.1.cmp(&y.1)));
+                    row.sort_by(by_gap);
                 });
         }
     }
