@@ -190,25 +190,16 @@ pub(super) fn write_outputs(
     table: Option<&Path>,
     plot: Option<&Path>,
 ) -> Result<()> {
-    let table_bytes = match table {
-        Some(_) => {
-            let mut bytes = Vec::new();
-            write_curve_csv(&mut bytes, curve)?;
-            Some(bytes)
-        }
-        None => None,
-    };
-    let svg = match plot {
-        Some(_) => Some(curve_svg(curve, title)?),
-        None => None,
-    };
-    let mut files: Vec<(&Path, &[u8])> = Vec::new();
-    if let (Some(path), Some(bytes)) = (table, &table_bytes) {
-        files.push((path, bytes));
+    let mut made: Vec<(&Path, Vec<u8>)> = Vec::new();
+    if let Some(path) = table {
+        let mut bytes = Vec::new();
+        write_curve_csv(&mut bytes, curve)?;
+        made.push((path, bytes));
     }
-    if let (Some(path), Some(svg)) = (plot, &svg) {
-        files.push((path, svg.as_bytes()));
+    if let Some(path) = plot {
+        made.push((path, curve_svg(curve, title)?.into_bytes()));
     }
+    let files: Vec<(&Path, &[u8])> = made.iter().map(|(p, b)| (*p, b.as_slice())).collect();
     write_all_atomic(&files).context("writing the curve")?;
     Ok(())
 }
