@@ -13,6 +13,7 @@ use crate::error::{Error, ErrorKind, Result};
 use crate::vectors::VectorSet;
 
 mod batch;
+mod direct;
 
 /// The nearest codeword to a query.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -36,27 +37,40 @@ impl Nearest {
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum SearchMethod {
     /// Choose by dimension and size: single queries use the tree for
-    /// d ≤ 8 with k ≥ 16 and the scan otherwise; batches use the tree for
-    /// d ≤ [`BATCH_TREE_MAX_DIMENSION`] with k ≥ 16 and the blocked scan
-    /// otherwise.
+    /// d ≤ 8 with k ≥ 16 and the scan otherwise; batches use the scan
+    /// unless d ≤ 3 and k > [`BATCH_SCAN_MAX_CODEWORDS`], where the tree
+    /// answers them.
     Auto,
     /// k-d tree over the codewords, for single queries and batches.
     KdTree,
-    /// Every codeword in turn (the blocked kernel for batches). (An early
-    /// exit on the partial sum was measured slower: the branch costs more
-    /// than the work it saves.)
+    /// Every codeword in turn. Batches go through a kernel: for up to 3
+    /// components, exact differences eight codewords at a time; beyond,
+    /// the blocked expanded-form kernel with its exact recheck. (An early
+    /// exit on the partial sum was measured slower for single queries: the
+    /// branch costs more than the work it saves.)
     Scan,
 }
 
-/// The largest dimension at which [`SearchMethod::Auto`] answers batches
-/// with the tree. Measured single-threaded on 100 000 standard normal
-/// queries, k = 256 (benches/nearest.rs, one run, AVX2 kernel), the blocked
-/// scan takes 0.78× the tree's time at d = 3, 0.54× at d = 4, 0.36× at
-/// d = 5 and 0.13× at d = 8 (with the baseline x86-64 kernel: 1.0×, 0.85×,
-/// 0.51×, 0.23×). On photo colours (benches/palette.rs, 2 threads, one run
-/// each) the end-to-end palette took 8.2 s with the tree at d = 3 and 8.9 s
-/// with the blocked scan, so d = 3 keeps the tree.
-pub const BATCH_TREE_MAX_DIMENSION: usize = 3;
+/// The most codewords for which [`SearchMethod::Auto`] answers batches of
+/// 1 to 3 components with the scan kernel rather than the tree. Measured
+/// single-threaded on the 56 506 distinct colours of a 2-megapixel photo
+/// with k = 256 (one run each, on a busy machine): the tree took about
+/// 230 ns per query, the blocked expanded-form kernel 110 ns and the
+/// exact-difference kernel 57 ns, about 0.22 ns per codeword. The scan
+/// grows with k and the tree roughly with log k, so past about a thousand
+/// codewords the tree is expected to win (an estimate, not measured).
+pub const BATCH_SCAN_MAX_CODEWORDS: usize = 1024;
+
+/// Panics unless `rows` holds exactly `count` rows of `d` values: the
+/// contract of every batch search.
+fn assert_rows(rows: &[f32], count: usize, d: usize) {
+    assert_eq!(
+        rows.len(),
+        count * d,
+        "batch search: {} values are not {count} rows of dimension {d}",
+        rows.len()
+    );
+}
 
 /// Rows per parallel work unit. Fixed, so the split of work (and anything
 /// summed per chunk) never depends on the number of threads.
@@ -354,8 +368,27 @@ pub struct Encoder {
     /// Searched by single queries when present (else they scan), and by
     /// batches when there is no `blocked`.
     tree: Option<KdTree>,
-    /// The codewords laid out for the blocked kernel, for batches.
-    blocked: Option<batch::Blocked>,
+    /// The codewords laid out for a batch kernel.
+    blocked: Option<Kernel>,
+}
+
+/// The batch kernel of a scan.
+#[derive(Debug, Clone)]
+enum Kernel {
+    /// Exact differences, for up to [`direct::MAX_DIMENSION`] components.
+    Direct(direct::Direct),
+    /// The expanded form with an exact recheck, for more.
+    Blocked(batch::Blocked),
+}
+
+impl Kernel {
+    fn new(codewords: &[f32], dimension: usize) -> Kernel {
+        if dimension <= direct::MAX_DIMENSION {
+            Kernel::Direct(direct::Direct::new(codewords, dimension))
+        } else {
+            Kernel::Blocked(batch::Blocked::new(codewords, dimension))
+        }
+    }
 }
 
 impl Encoder {
@@ -392,14 +425,14 @@ impl Encoder {
             SearchMethod::Scan => (false, true),
             SearchMethod::Auto => (
                 dimension <= 8 && k >= 16,
-                dimension > BATCH_TREE_MAX_DIMENSION || k < 16,
+                dimension > direct::MAX_DIMENSION || k <= BATCH_SCAN_MAX_CODEWORDS,
             ),
         };
         Ok(Encoder {
             dimension,
             codewords: codewords.to_vec(),
             tree: tree.then(|| KdTree::build(codewords, dimension)),
-            blocked: blocked.then(|| batch::Blocked::new(codewords, dimension)),
+            blocked: blocked.then(|| Kernel::new(codewords, dimension)),
         })
     }
 
@@ -460,7 +493,8 @@ impl Encoder {
     /// If `rows.len()` is not `out.len()` × the dimension.
     pub fn nearest_batch(&self, rows: &[f32], out: &mut [Nearest]) {
         match &self.blocked {
-            Some(b) => b.nearest(&self.codewords, rows, out),
+            Some(Kernel::Direct(k)) => k.nearest(rows, out),
+            Some(Kernel::Blocked(b)) => b.nearest(&self.codewords, rows, out),
             None => {
                 for (q, o) in self.queries(rows, out.len()).zip(out) {
                     *o = self.nearest(q);
@@ -476,7 +510,8 @@ impl Encoder {
     /// If `rows.len()` is not `out.len()` × the dimension.
     pub fn nearest_two_batch(&self, rows: &[f32], out: &mut [NearestTwo]) {
         match &self.blocked {
-            Some(b) => b.nearest_two(&self.codewords, rows, out),
+            Some(Kernel::Direct(k)) => k.nearest_two(rows, out),
+            Some(Kernel::Blocked(b)) => b.nearest_two(&self.codewords, rows, out),
             None => {
                 for (q, o) in self.queries(rows, out.len()).zip(out) {
                     *o = self.nearest_two(q);
@@ -487,14 +522,8 @@ impl Encoder {
 
     /// The `count` queries of `rows`, checked to be exactly that many.
     fn queries<'a>(&self, rows: &'a [f32], count: usize) -> std::slice::ChunksExact<'a, f32> {
-        let d = self.dimension;
-        assert_eq!(
-            rows.len(),
-            count * d,
-            "batch search: {} values are not {count} rows of dimension {d}",
-            rows.len()
-        );
-        rows.chunks_exact(d)
+        assert_rows(rows, count, self.dimension);
+        rows.chunks_exact(self.dimension)
     }
 
     fn check(&self, dimension: usize) -> Result<()> {

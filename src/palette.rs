@@ -12,7 +12,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::codebook::{Codebook, Meaning, TrainingFacts};
 use crate::colour::{delta_e2000, rgb8_to_lab, ColourSpace, DisplayFormat, Grid};
-use crate::encode::Encoder;
+use crate::encode::{Encoder, Nearest, CHUNK_ROWS};
 use crate::error::{Error, ErrorKind, Result};
 use crate::kmeans::{train_constrained, CheckedTrainConfig, Constraint, TrainEvent, TrainReport};
 use crate::load::{colour_histogram, RgbaImage};
@@ -643,7 +643,32 @@ impl Palette {
     /// [`Palette::index_of`] for every colour of `colours` (as read, with
     /// pixel counts), on all threads.
     pub fn indices_of(&self, colours: &[([u8; 4], u64)]) -> Vec<u32> {
-        colours.par_iter().map(|&(c, _)| self.index_of(c)).collect()
+        let d = self.layout.dimension();
+        let mut out = vec![0u32; colours.len()];
+        // Batches of working points: the encoder's batch kernel is several
+        // times faster than one search per colour.
+        out.par_chunks_mut(CHUNK_ROWS)
+            .zip(colours.par_chunks(CHUNK_ROWS))
+            .for_each(|(out, colours)| {
+                let mut points = Vec::with_capacity(colours.len() * d);
+                let mut searched = Vec::with_capacity(colours.len());
+                for (j, &(c, _)) in colours.iter().enumerate() {
+                    match self.reserved_for(c) {
+                        Some(i) => out[j] = i,
+                        None => {
+                            let v = working_point(handled(c, self.layout.alpha), &self.layout);
+                            points.extend_from_slice(&v[..d]);
+                            searched.push(j);
+                        }
+                    }
+                }
+                let mut found = vec![Nearest::NONE; searched.len()];
+                self.encoder.nearest_batch(&points, &mut found);
+                for (&j, f) in searched.iter().zip(&found) {
+                    out[j] = f.index + self.first_visible as u32;
+                }
+            });
+        out
     }
 
     fn map_plain(&self, image: &RgbaImage) -> Vec<u32> {

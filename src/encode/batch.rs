@@ -54,7 +54,7 @@
 
 use multiversion::multiversion;
 
-use super::{distance_sq, nearest_linear, nearest_two_linear, Nearest, NearestTwo};
+use super::{assert_rows, distance_sq, nearest_linear, nearest_two_linear, Nearest, NearestTwo};
 
 /// Codewords per panel: the kernel's vector width.
 const LANES: usize = 8;
@@ -236,13 +236,7 @@ impl Blocked {
         mut each: impl FnMut(&[f32], (f32, f32), &[f32], f64, &mut T),
     ) {
         let d = self.dimension;
-        assert_eq!(
-            rows.len(),
-            out.len() * d,
-            "batch search: {} values are not {} rows of dimension {d}",
-            rows.len(),
-            out.len()
-        );
+        assert_rows(rows, out.len(), d);
         let padded = self.norms.len();
         let mut tile = self.tile();
         for (rows, out) in rows.chunks(TILE_ROWS * d).zip(out.chunks_mut(TILE_ROWS)) {

@@ -100,6 +100,9 @@ fn batch_equals_linear_oracle_on_every_kind_of_data() {
         (1, 9, 300),
         (2, 3, 77),
         (3, 17, 513),
+        (3, 1, 9),
+        (3, 256, 1000),
+        (2, 100, 333),
         (4, 600, 131),
         (5, 64, 1000),
         (7, 8, 33),
@@ -278,10 +281,11 @@ fn round_up_never_rounds_down() {
 }
 
 #[test]
-fn auto_answers_batches_with_the_tree_only_in_low_dimensions() {
+fn auto_answers_batches_with_the_tree_only_for_many_colour_codewords() {
     let mut rng = SeededRng::new(76);
     for (d, k, single, batch) in [
-        (3, 256, SearchMethod::KdTree, SearchMethod::KdTree),
+        (3, 256, SearchMethod::KdTree, SearchMethod::Scan),
+        (3, 2048, SearchMethod::KdTree, SearchMethod::KdTree),
         (5, 256, SearchMethod::KdTree, SearchMethod::Scan),
         (16, 256, SearchMethod::Scan, SearchMethod::Scan),
         (3, 8, SearchMethod::Scan, SearchMethod::Scan),
