@@ -87,6 +87,53 @@ pub struct TrainConfig {
     pub coarse_start: CoarseStart,
     /// Whether restarts may run on a sample of a large input. Default auto.
     pub sampling: Sampling,
+    /// How far each run is taken. Default thorough.
+    pub effort: Effort,
+}
+
+/// How far training takes each run on a large input.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Effort {
+    /// Every restart ends at a local optimum of all distinct vectors (after
+    /// a coarse start or a sample only when the input is large), finished
+    /// with single-vector moves when they are affordable.
+    Thorough,
+    /// For interactive use: when there are more distinct vectors than
+    /// [`quick_stand_in_size`] allows, the restarts (seeding, Lloyd and
+    /// single-vector moves) run on grid cell means (at most
+    /// [`COARSE_MAX_DIMENSION`] components) or on a seeded sample (more
+    /// components) of about that many vectors, whatever the input's size
+    /// (unless [`CoarseStart::Never`] / [`Sampling::Never`]); the best is
+    /// then refined on all distinct vectors by at most
+    /// [`QUICK_REFINE_PASSES`] Lloyd passes under the constraint, without
+    /// single-vector moves. Small inputs are trained as with `Thorough`.
+    Quick,
+}
+
+impl Effort {
+    /// The name used on the command line and in reports.
+    pub fn as_str(&self) -> &'static str {
+        match self {
+            Effort::Thorough => "thorough",
+            Effort::Quick => "quick",
+        }
+    }
+}
+
+/// Stand-in vectors per codeword under [`Effort::Quick`].
+pub const QUICK_PER_CODEWORD: usize = 8;
+/// The fewest stand-in vectors under [`Effort::Quick`], for small k.
+pub const QUICK_MIN_STAND_IN: usize = 1024;
+/// Lloyd passes over all distinct vectors after a quick start.
+pub const QUICK_REFINE_PASSES: u32 = 4;
+
+/// How many vectors the restarts run on under [`Effort::Quick`] for `k`
+/// codewords: [`QUICK_PER_CODEWORD`] per codeword, at least
+/// [`QUICK_MIN_STAND_IN`], at most [`COARSE_CELLS`].
+pub fn quick_stand_in_size(k: usize) -> usize {
+    QUICK_PER_CODEWORD
+        .saturating_mul(k)
+        .clamp(QUICK_MIN_STAND_IN, COARSE_CELLS)
 }
 
 /// Whether training may start on a coarse stand-in for the data.
@@ -152,7 +199,14 @@ impl TrainConfig {
             seed: DEFAULT_SEED,
             coarse_start: CoarseStart::Auto,
             sampling: Sampling::Auto,
+            effort: Effort::Thorough,
         }
+    }
+
+    /// Sets how far each run is taken.
+    pub fn effort(mut self, e: Effort) -> Self {
+        self.effort = e;
+        self
     }
 
     /// Sets the seeding method.
@@ -283,6 +337,8 @@ pub struct TrainReport {
     /// Draws of the sample the restarts ran on, when training sampled a
     /// large input ([`Sampling`]).
     pub sample_draws: Option<usize>,
+    /// How far the runs were taken.
+    pub effort: Effort,
     /// Things the user should know (e.g. fewer distinct vectors than k).
     pub notices: Vec<String>,
 }
@@ -501,35 +557,54 @@ pub fn train_constrained(
                 distinct_vectors: distinct,
                 coarse_vectors: None,
                 sample_draws: None,
+                effort: cfg.effort,
                 notices,
             },
         });
     }
 
     let opts = config.lloyd_options();
+    let quick = cfg.effort == Effort::Quick;
     // Many distinct low-dimensional vectors (photos): restarts run on grid
     // cell means, and only the best is refined on every distinct vector.
+    let cells = if quick {
+        quick_stand_in_size(cfg.size)
+    } else {
+        COARSE_CELLS
+    };
     let coarse = (cfg.coarse_start == CoarseStart::Auto
         && dim <= COARSE_MAX_DIMENSION
-        && unique.len() > COARSE_CELLS
-        && !moves_affordable(&unique, cfg.size))
-    .then(|| unique.coarsened(COARSE_CELLS));
+        && unique.len() > cells
+        && (quick || !moves_affordable(&unique, cfg.size)))
+    .then(|| unique.coarsened(cells));
     // Many distinct vectors otherwise (long logs): restarts run on a seeded
     // sample, and only the best is refined on every distinct vector.
-    let draws = SAMPLE_PER_CODEWORD.saturating_mul(cfg.size);
-    let sample = (coarse.is_none()
-        && cfg.sampling == Sampling::Auto
-        && unique.len() > SAMPLE_ABOVE_PER_CODEWORD.saturating_mul(cfg.size))
-    .then(|| {
-        unique.sampled(
-            draws,
-            &mut SeededRng::new(derive_seed(cfg.seed, SAMPLE_STREAM)),
+    let (draws, sample_above) = if quick {
+        let n = quick_stand_in_size(cfg.size);
+        (n, n)
+    } else {
+        (
+            SAMPLE_PER_CODEWORD.saturating_mul(cfg.size),
+            SAMPLE_ABOVE_PER_CODEWORD.saturating_mul(cfg.size),
         )
-    })
-    .filter(|s| s.len() > cfg.size);
+    };
+    let sample =
+        (coarse.is_none() && cfg.sampling == Sampling::Auto && unique.len() > sample_above)
+            .then(|| {
+                unique.sampled(
+                    draws,
+                    &mut SeededRng::new(derive_seed(cfg.seed, SAMPLE_STREAM)),
+                )
+            })
+            .filter(|s| s.len() > cfg.size);
     if let Some(s) = &sample {
+        let refined = if quick {
+            format!("at most {QUICK_REFINE_PASSES} Lloyd passes")
+        } else {
+            "full passes".to_string()
+        };
         notices.push(format!(
-            "trained on a sample: the restarts ran on {draws} vectors drawn at random from the {distinct} distinct ones ({} distinct in the sample); the best was then refined with full passes over all of them",
+            "trained on a sample: the restarts ran on {draws} vectors drawn at random from the {distinct} distinct ones ({} distinct in the sample); the best was then refined with {refined} over all of them",
             s.len()
         ));
     }
@@ -601,9 +676,20 @@ pub fn train_constrained(
                 distortion,
             })
         };
-        let mut refined = lloyd_core(&unique, &result.codewords, &opts, free, &on_iter)?;
-        refined.iterations += result.iterations;
-        polish(&unique, refined, &opts, constraint, &on_iter)?
+        if quick {
+            let capped = LloydOptions {
+                max_iterations: opts.max_iterations.min(QUICK_REFINE_PASSES),
+                ..opts
+            };
+            let mut refined =
+                lloyd_core(&unique, &result.codewords, &capped, constraint, &on_iter)?;
+            refined.iterations += result.iterations;
+            refined
+        } else {
+            let mut refined = lloyd_core(&unique, &result.codewords, &opts, free, &on_iter)?;
+            refined.iterations += result.iterations;
+            polish(&unique, refined, &opts, constraint, &on_iter)?
+        }
     } else {
         result
     };
@@ -636,6 +722,7 @@ pub fn train_constrained(
             distinct_vectors: distinct,
             coarse_vectors: coarse.as_ref().map(VectorSet::len),
             sample_draws: sample.as_ref().map(|_| draws),
+            effort: cfg.effort,
             notices,
         },
         codewords,
@@ -1935,6 +2022,66 @@ mod tests {
         // Below the threshold nothing is sampled.
         let small = train(&v, &TrainConfig::new(10).check().unwrap()).unwrap();
         assert_eq!(small.report.sample_draws, None);
+    }
+
+    #[test]
+    fn quick_effort_starts_on_a_stand_in_and_caps_the_final_passes() {
+        // 10 000 distinct 2-D points around 8 spots, k = 8: more than the
+        // 1 024 stand-in vectors of a quick start, so the restarts run on
+        // cell means, then at most QUICK_REFINE_PASSES passes over all.
+        let spots: Vec<[f32; 2]> = (0..8)
+            .map(|i| [(i % 4) as f32 * 9.0, (i / 4) as f32 * 9.0])
+            .collect();
+        let v = gaussian_mixture(17, 10_000, &spots);
+        let quick = |k: usize| {
+            train(
+                &v,
+                &TrainConfig::new(k)
+                    .effort(Effort::Quick)
+                    .restarts(1)
+                    .check()
+                    .unwrap(),
+            )
+            .unwrap()
+        };
+        let q = quick(8);
+        assert_eq!(quick_stand_in_size(8), QUICK_MIN_STAND_IN);
+        let cells = q.report.coarse_vectors.expect("a coarse start");
+        assert!(cells <= QUICK_MIN_STAND_IN, "{cells} cell means");
+        assert_eq!(q, quick(8), "the same seed gives the same codebook");
+        // Restart 0 of the thorough run on all vectors, for comparison:
+        // the quick result stays within 2 % of it on these clear spots.
+        let full = train(&v, &TrainConfig::new(8).restarts(1).check().unwrap()).unwrap();
+        assert_eq!(full.report.coarse_vectors, None);
+        assert!(
+            q.report.distortion <= full.report.distortion * 1.02,
+            "{} vs {}",
+            q.report.distortion,
+            full.report.distortion
+        );
+        // A stand-in of every vector is no stand-in: small inputs are
+        // trained as with the thorough effort.
+        let few = VectorSet::new(2, v.as_flat()[..2 * 600].to_vec()).unwrap();
+        let both: Vec<Trained> = [Effort::Quick, Effort::Thorough]
+            .iter()
+            .map(|&e| train(&few, &TrainConfig::new(8).effort(e).check().unwrap()).unwrap())
+            .collect();
+        assert_eq!(both[0], both[1]);
+        // More than 4 components: a sample of the stand-in's size instead.
+        let wide = VectorSet::new(
+            5,
+            (0..5 * 3000)
+                .map(|i| ((i * 7919) % 100_003) as f32)
+                .collect(),
+        )
+        .unwrap();
+        let s = train(
+            &wide,
+            &TrainConfig::new(4).effort(Effort::Quick).check().unwrap(),
+        )
+        .unwrap();
+        assert_eq!(s.report.sample_draws, Some(QUICK_MIN_STAND_IN));
+        assert!(s.report.notices.iter().any(|n| n.contains("at most")));
     }
 
     #[test]

@@ -224,9 +224,17 @@ pub struct KmeansArgs {
     #[arg(long, default_value_t = vqforge::kmeans::DEFAULT_SEED)]
     pub seed: u64,
 
-    /// Independent runs; the lowest distortion is kept.
-    #[arg(long, value_name = "N", default_value_t = 3)]
-    pub restarts: u32,
+    /// How far training goes: quick (restarts on a coarse stand-in, a few
+    /// passes over all data) or thorough (every restart to convergence on
+    /// all data, then single-vector moves). Default: quick for images in
+    /// `palette` and `train`, thorough otherwise.
+    #[arg(long, value_enum, value_name = "LEVEL")]
+    pub effort: Option<EffortArg>,
+
+    /// Independent runs; the lowest distortion is kept. Default: 1 with
+    /// --effort quick, 3 with thorough.
+    #[arg(long, value_name = "N")]
+    pub restarts: Option<u32>,
 
     /// Lloyd iteration cap per run.
     #[arg(long, value_name = "N", default_value_t = 300)]
@@ -245,6 +253,15 @@ pub struct KmeansArgs {
     /// always use all vectors (never).
     #[arg(long, value_enum, value_name = "WHEN", default_value = "auto")]
     pub sampling: SamplingArg,
+}
+
+/// How far training goes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum EffortArg {
+    /// One restart on a coarse stand-in for large inputs, a few passes over all data.
+    Quick,
+    /// Every restart to convergence on all data, then single-vector moves.
+    Thorough,
 }
 
 /// When training may use a sample.

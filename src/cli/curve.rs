@@ -14,6 +14,7 @@ use vqforge::curve::{
     ImageSource, InputKind, Quality, RecordSource, Sizes, Target, Verdict, MEMORISING_RATIO,
 };
 use vqforge::export::{curve_svg, write_curve_csv};
+use vqforge::kmeans::{Effort, TrainConfig};
 
 use super::args::{CurveArgs, TargetArgs};
 use super::output::{db, jnum, notices, num, print_json, print_table, secs};
@@ -77,11 +78,12 @@ pub fn run(a: CurveArgs) -> Result<()> {
     if let Some(t) = &target {
         t.check_kind(kind)?;
     }
-    let mut config = CurveConfig::new(train_config(1, &a.kmeans)?).growth(if a.independent {
-        Growth::Independent
-    } else {
-        Growth::Split
-    });
+    let mut config =
+        CurveConfig::new(train_config(1, &a.kmeans, Effort::Thorough)?).growth(if a.independent {
+            Growth::Independent
+        } else {
+            Growth::Split
+        });
     if let Some(s) = &a.sizes {
         config = config.sizes(Sizes::parse(s).context("--sizes")?);
     }
@@ -140,7 +142,13 @@ pub fn run(a: CurveArgs) -> Result<()> {
     notices(&curve.notices);
     let cautions = cautions(kind);
     if a.json {
-        print_json(&report_json(&a, &curve, &cautions, seconds))?;
+        print_json(&report_json(
+            &a,
+            &config.get().train,
+            &curve,
+            &cautions,
+            seconds,
+        ))?;
     } else {
         print_report(&a, &curve, seconds)?;
     }
@@ -268,7 +276,13 @@ fn target_json(t: &Target) -> Value {
     json!({ "kind": kind, "value": value })
 }
 
-fn report_json(a: &CurveArgs, curve: &Curve, cautions: &[String], seconds: f64) -> Value {
+fn report_json(
+    a: &CurveArgs,
+    train: &TrainConfig,
+    curve: &Curve,
+    cautions: &[String],
+    seconds: f64,
+) -> Value {
     json!({
         "points": curve.points.iter().map(point_json).collect::<Vec<_>>(),
         "searched": curve.searched.iter().map(point_json).collect::<Vec<_>>(),
@@ -285,7 +299,7 @@ fn report_json(a: &CurveArgs, curve: &Curve, cautions: &[String], seconds: f64) 
         "memorising_ratio": MEMORISING_RATIO,
         "raw_bytes": curve.raw_bytes,
         "seed": a.kmeans.seed,
-        "restarts": a.kmeans.restarts,
+        "restarts": train.restarts,
         "table": a.table.as_ref().map(|p| p.display().to_string()),
         "plot": a.plot.as_ref().map(|p| p.display().to_string()),
         "notices": curve.notices,

@@ -15,7 +15,7 @@ use vqforge::export::{
     write_rgba_png, CImage,
 };
 use vqforge::format::{self, ImageInfo, StreamHeader};
-use vqforge::kmeans::TrainEvent;
+use vqforge::kmeans::{Effort, TrainEvent, TrainReport, QUICK_REFINE_PASSES};
 use vqforge::load::{read_image, ImageLimits, RgbaImage};
 use vqforge::metrics;
 use vqforge::palette::{
@@ -371,7 +371,7 @@ pub fn run(a: PaletteArgs) -> Result<()> {
     check_png_size(a.size)?;
     check_outputs(&a)?;
     let config = palette_config(a.size, &a.colour)?;
-    let train = train_config(a.size, &a.kmeans)?.check()?;
+    let train = train_config(a.size, &a.kmeans, Effort::Quick)?.check()?;
     let image = load_image(&a.image, a.colour.max_pixels)?;
     let bar = progress::spinner("fitting palette");
     let observe = spinner_observer(&bar, train.get().restarts);
@@ -408,6 +408,7 @@ pub fn run(a: PaletteArgs) -> Result<()> {
             "dither": dither_name(dither),
             "palette": palette.entries.iter().map(|e| hex([e[0], e[1], e[2]])).collect::<Vec<_>>(),
             "seed": t.report.seed,
+            "effort": t.report.effort.as_str(),
             "coarse_start_cells": t.report.coarse_vectors,
             "sample_draws": t.report.sample_draws,
             "seconds": seconds,
@@ -445,19 +446,25 @@ pub fn run(a: PaletteArgs) -> Result<()> {
             ),
         ),
     ];
-    if let Some(cells) = t.report.coarse_vectors {
-        pairs.push(("coarse start", coarse_start_line(cells)));
-    }
+    pairs.extend(coarse_start_line(&t.report));
     pairs.extend(error_pairs(&err));
     pairs.push(("time", secs(seconds)));
     print_pairs(&pairs)
 }
 
 /// What a coarse start did, for the human report.
-fn coarse_start_line(cells: usize) -> String {
-    format!(
-        "restarts ran on {cells} cell means of the colours; the best was refined on all of them"
-    )
+fn coarse_start_line(r: &TrainReport) -> Option<(&'static str, String)> {
+    let cells = r.coarse_vectors?;
+    let refined = match r.effort {
+        Effort::Quick => format!("with at most {QUICK_REFINE_PASSES} Lloyd passes over"),
+        Effort::Thorough => "on".to_string(),
+    };
+    Some((
+        "coarse start",
+        format!(
+            "restarts ran on {cells} cell means of the colours; the best was refined {refined} all of them"
+        ),
+    ))
 }
 
 pub(super) fn merge(into: &mut serde_json::Value, from: serde_json::Value) {
@@ -475,7 +482,7 @@ pub fn train_images(a: TrainArgs) -> Result<()> {
     let limits = super::limits(&a.limits, a.colour.max_pixels)?;
     super::check_size("--size", a.size, &limits)?;
     let config = palette_config(a.size, &a.colour)?;
-    let train = train_config(a.size, &a.kmeans)?.check()?;
+    let train = train_config(a.size, &a.kmeans, Effort::Quick)?.check()?;
     let mut images = Vec::new();
     let mut pixels = 0u64;
     for p in &a.inputs {
@@ -507,6 +514,7 @@ pub fn train_images(a: TrainArgs) -> Result<()> {
             "iterations": r.iterations,
             "stopped_by": r.stopped_by.as_str(),
             "restarts": r.restart_distortions.len(),
+            "effort": r.effort.as_str(),
             "coarse_start_cells": r.coarse_vectors,
             "sample_draws": r.sample_draws,
             "seed": r.seed,
@@ -541,17 +549,16 @@ pub fn train_images(a: TrainArgs) -> Result<()> {
         (
             "k-means",
             format!(
-                "{} restart(s), seed {}, {} iteration(s), stopped: {}",
+                "{} restart(s), {} effort, seed {}, {} iteration(s), stopped: {}",
                 r.restart_distortions.len(),
+                r.effort.as_str(),
                 r.seed,
                 r.iterations,
                 r.stopped_by.as_str()
             ),
         ),
     ];
-    if let Some(cells) = r.coarse_vectors {
-        pairs.push(("coarse start", coarse_start_line(cells)));
-    }
+    pairs.extend(coarse_start_line(r));
     pairs.push(("mse (working space)", num(mse_scaled)));
     pairs.push(("time", secs(seconds)));
     print_pairs(&pairs)

@@ -7,13 +7,14 @@ use serde_json::json;
 
 use vqforge::codebook::Scaling;
 use vqforge::format;
-use vqforge::kmeans::{Sampling, Seeding, TrainConfig, TrainEvent};
+use vqforge::kmeans::{Effort, Sampling, Seeding, TrainConfig, TrainEvent};
 use vqforge::limits::Limits;
 use vqforge::load::{frames_of, read_table, CsvOptions, Missing, RecordTable, TimeChoice};
 use vqforge::records::{train_tables, RecordError};
 
 use super::args::{
-    KmeansArgs, MissingArg, ReadArgs, SamplingArg, ScaleArg, SeedingArg, ShapeArgs, TrainArgs,
+    EffortArg, KmeansArgs, MissingArg, ReadArgs, SamplingArg, ScaleArg, SeedingArg, ShapeArgs,
+    TrainArgs,
 };
 use super::output::{db, jnum, notices, num, print_json, print_pairs, print_table, secs};
 use super::{check_size, progress, same_file, usage};
@@ -82,14 +83,27 @@ pub fn read_tables(inputs: &[std::path::PathBuf], opts: &CsvOptions) -> Result<V
 }
 
 /// k-means configuration from the flags.
-pub fn train_config(size: usize, k: &KmeansArgs) -> Result<TrainConfig> {
+///
+/// `effort` is the command's default when `--effort` is not given; the
+/// default number of restarts follows the effort.
+pub fn train_config(size: usize, k: &KmeansArgs, effort: Effort) -> Result<TrainConfig> {
+    let effort = match k.effort {
+        Some(EffortArg::Quick) => Effort::Quick,
+        Some(EffortArg::Thorough) => Effort::Thorough,
+        None => effort,
+    };
+    let restarts = k.restarts.unwrap_or(match effort {
+        Effort::Quick => 1,
+        Effort::Thorough => 3,
+    });
     Ok(TrainConfig::new(size)
+        .effort(effort)
         .seeding(match k.seeding {
             SeedingArg::KMeansPlusPlus => Seeding::KMeansPlusPlus,
             SeedingArg::Split => Seeding::Split,
             SeedingArg::Random => Seeding::Random,
         })
-        .restarts(k.restarts)
+        .restarts(restarts)
         .max_iterations(k.max_iter)
         .tolerance(k.tolerance)
         .seed(k.seed)
@@ -167,7 +181,7 @@ pub fn run(a: TrainArgs) -> Result<()> {
     let limits = super::limits(&a.limits, None)?;
     check_size("--size", a.size, &limits)?;
     let opts = csv_options(&a.read, Some(&a.shape), &limits)?;
-    let config = train_config(a.size, &a.kmeans)?.check()?;
+    let config = train_config(a.size, &a.kmeans, Effort::Thorough)?.check()?;
     let tables = read_tables(&a.inputs, &opts)?;
     let bar = progress::spinner("training");
     let restarts = config.get().restarts;
@@ -208,6 +222,7 @@ pub fn run(a: TrainArgs) -> Result<()> {
             "stopped_by": r.stopped_by.as_str(),
             "restarts": r.restart_distortions.len(),
             "best_restart": r.best_restart,
+            "effort": r.effort.as_str(),
             "coarse_start_cells": r.coarse_vectors,
             "sample_draws": r.sample_draws,
             "seeding": r.seeding.as_str(),
@@ -238,9 +253,10 @@ pub fn run(a: TrainArgs) -> Result<()> {
         (
             "k-means",
             format!(
-                "{}, {} restart(s), seed {}, best run: {} iteration(s), stopped: {}",
+                "{}, {} restart(s), {} effort, seed {}, best run: {} iteration(s), stopped: {}",
                 r.seeding.as_str(),
                 r.restart_distortions.len(),
+                r.effort.as_str(),
                 r.seed,
                 r.iterations,
                 r.stopped_by.as_str()
