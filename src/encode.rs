@@ -493,7 +493,7 @@ impl Encoder {
     /// If `rows.len()` is not `out.len()` × the dimension.
     pub fn nearest_batch(&self, rows: &[f32], out: &mut [Nearest]) {
         match &self.blocked {
-            Some(Kernel::Direct(k)) => k.nearest(rows, out),
+            Some(Kernel::Direct(k)) => k.nearest(&self.codewords, rows, out),
             Some(Kernel::Blocked(b)) => b.nearest(&self.codewords, rows, out),
             None => {
                 for (q, o) in self.queries(rows, out.len()).zip(out) {
@@ -510,7 +510,7 @@ impl Encoder {
     /// If `rows.len()` is not `out.len()` × the dimension.
     pub fn nearest_two_batch(&self, rows: &[f32], out: &mut [NearestTwo]) {
         match &self.blocked {
-            Some(Kernel::Direct(k)) => k.nearest_two(rows, out),
+            Some(Kernel::Direct(k)) => k.nearest_two(&self.codewords, rows, out),
             Some(Kernel::Blocked(b)) => b.nearest_two(&self.codewords, rows, out),
             None => {
                 for (q, o) in self.queries(rows, out.len()).zip(out) {

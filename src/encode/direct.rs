@@ -9,11 +9,13 @@
 //! Each lane keeps its own least distance (and runner-up) over the
 //! codewords it sees, in index order with strict comparisons, so it holds
 //! its lowest-index nearest; the lanes are merged at the end, the lower
-//! index winning among equal distances.
+//! index winning among equal distances. A query that no codeword is a
+//! finite distance from (overflow, infinite or NaN components) goes to the
+//! linear scan, which settles how such ties fall.
 
 use multiversion::multiversion;
 
-use super::{assert_rows, Nearest, NearestTwo};
+use super::{assert_rows, nearest_linear, nearest_two_linear, Nearest, NearestTwo};
 
 /// The most components this kernel serves.
 pub const MAX_DIMENSION: usize = 3;
@@ -70,16 +72,33 @@ impl Direct {
     }
 
     /// Nearest codeword of every row of `rows` (flat), into `out`.
-    pub(super) fn nearest(&self, rows: &[f32], out: &mut [Nearest]) {
-        self.each_tile::<false, _>(rows, out, |lanes, slot| {
-            *slot = merge::<false>(lanes).nearest;
+    /// `codewords` are the ones the panels were made from; a query no
+    /// codeword is a finite distance from (overflow, infinite or NaN
+    /// components) is measured by the linear scan instead, which settles
+    /// how such ties fall.
+    pub(super) fn nearest(&self, codewords: &[f32], rows: &[f32], out: &mut [Nearest]) {
+        let d = self.dimension;
+        self.each_tile::<false, _>(rows, out, |lanes, x, slot| {
+            let found = merge::<false>(lanes).nearest;
+            *slot = if found.distance_sq.is_finite() {
+                found
+            } else {
+                nearest_linear(codewords, d, x)
+            };
         });
     }
 
-    /// Nearest codeword and runner-up distance of every row, into `out`.
-    pub(super) fn nearest_two(&self, rows: &[f32], out: &mut [NearestTwo]) {
-        self.each_tile::<true, _>(rows, out, |lanes, slot| {
-            *slot = merge::<true>(lanes);
+    /// Nearest codeword and runner-up distance of every row, into `out`
+    /// (`codewords` as for [`Direct::nearest`]).
+    pub(super) fn nearest_two(&self, codewords: &[f32], rows: &[f32], out: &mut [NearestTwo]) {
+        let d = self.dimension;
+        self.each_tile::<true, _>(rows, out, |lanes, x, slot| {
+            let found = merge::<true>(lanes);
+            *slot = if found.nearest.distance_sq.is_finite() {
+                found
+            } else {
+                nearest_two_linear(codewords, d, x)
+            };
         });
     }
 
@@ -87,7 +106,7 @@ impl Direct {
         &self,
         rows: &[f32],
         out: &mut [T],
-        mut each: impl FnMut(&Lanes, &mut T),
+        mut each: impl FnMut(&Lanes, &[f32], &mut T),
     ) {
         let d = self.dimension;
         assert_rows(rows, out.len(), d);
@@ -100,8 +119,8 @@ impl Direct {
                 }
             }
             let lanes = scan(&tile, &self.panels, TWO);
-            for (l, slot) in lanes.iter().zip(out.iter_mut()) {
-                each(l, slot);
+            for ((l, x), slot) in lanes.iter().zip(rows.chunks_exact(d)).zip(out.iter_mut()) {
+                each(l, x, slot);
             }
         }
     }
@@ -138,10 +157,7 @@ fn scan_with<const TWO: bool>(
     for (r, lanes) in out.iter_mut().enumerate() {
         let (x0, x1, x2) = (tile[0][r], tile[1][r], tile[2][r]);
         let mut least = [f32::INFINITY; LANES];
-        // As the oracles start: the nearest-only scan from codeword 0 at
-        // +∞, the runner-up one from no codeword at all (so a query whose
-        // every distance is NaN keeps index u32::MAX there).
-        let mut index = if TWO { [u32::MAX; LANES] } else { first };
+        let mut index = first;
         let mut second = [f32::INFINITY; LANES];
         let mut at = first;
         for panel in panels.chunks_exact(MAX_DIMENSION * LANES) {
@@ -152,8 +168,7 @@ fn scan_with<const TWO: bool>(
                 // distance_sq's order: ((0 + d0²) + d1²) + d2², and
                 // 0 + d0² is d0² exactly.
                 let v = d0 * d0 + d1 * d1 + d2 * d2;
-                // The runner-up oracle takes a first codeword at +∞ too.
-                let nearer = v < least[l] || (TWO && v == least[l] && index[l] == u32::MAX);
+                let nearer = v < least[l];
                 if TWO {
                     let beaten = if nearer { least[l] } else { v };
                     second[l] = if beaten < second[l] {
