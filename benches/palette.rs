@@ -18,41 +18,16 @@ use std::hint::black_box;
 use std::time::Duration;
 
 use criterion::{criterion_group, criterion_main, Criterion, SamplingMode};
-use image::imageops::{resize, FilterType};
 use vqforge::export::write_indexed_png;
 use vqforge::kmeans::TrainConfig;
-use vqforge::load::{read_image, ImageLimits, RgbaImage};
+use vqforge::load::RgbaImage;
 use vqforge::palette::{measure, train_palette, Dither, Palette, PaletteConfig};
 
-const SIZE: usize = 256;
+#[path = "common/photo.rs"]
+mod photo;
+use photo::photo;
 
-fn photo() -> (String, RgbaImage) {
-    let limits = ImageLimits::default();
-    if let Ok(path) = std::env::var("VQFORGE_BENCH_PHOTO") {
-        let bytes = std::fs::read(&path).unwrap_or_else(|e| panic!("reading {path}: {e}"));
-        let img = read_image(&bytes, &path, &limits).expect("a readable image");
-        return (path, img);
-    }
-    let path = concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/tests/data/images/astronaut.png"
-    );
-    let bytes = std::fs::read(path).expect("the committed astronaut photo");
-    let small = read_image(&bytes, path, &limits).expect("a readable PNG");
-    let flat: Vec<u8> = small.pixels.iter().flatten().copied().collect();
-    let buffer = image::RgbaImage::from_raw(small.width, small.height, flat).expect("whole pixels");
-    let big = resize(&buffer, 1414, 1414, FilterType::Triangle);
-    let pixels = big.pixels().map(|p| p.0).collect::<Vec<[u8; 4]>>();
-    let name = "astronaut enlarged to 1414 × 1414".to_string();
-    (
-        name,
-        RgbaImage {
-            width: big.width(),
-            height: big.height(),
-            pixels,
-        },
-    )
-}
+const SIZE: usize = 256;
 
 /// The whole job; returns the MSE and the PNG's size.
 fn palette_png(image: &RgbaImage) -> (f64, usize) {

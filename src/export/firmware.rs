@@ -103,24 +103,31 @@ pub fn pack_rows(indices: &[u32], width: u32, height: u32, bits: u8) -> Result<V
     // never larger than its indices.
     let row_bytes = packed_row_bytes(width, bits) as usize;
     let mut out = vec![0u8; row_bytes * height as usize];
-    let bits = usize::from(bits);
     for (row, out_row) in indices
         .chunks_exact(width as usize)
         .zip(out.chunks_exact_mut(row_bytes))
     {
-        if bits == 8 {
-            for (o, &i) in out_row.iter_mut().zip(row) {
-                *o = i as u8;
-            }
-            continue;
-        }
-        for (x, &i) in row.iter().enumerate() {
-            let bit = x * bits;
-            let shift = 8 - bits - bit % 8;
-            out_row[bit / 8] |= (i as u8) << shift;
-        }
+        pack_row(row, bits, out_row);
     }
     Ok(out)
+}
+
+/// Packs one row of indices at `bits` (1, 2, 4 or 8) bits per pixel into
+/// `out`, in the bit order of [`pack_rows`]. `out` holds
+/// [`packed_row_bytes`] bytes, all zero, and every index fits in `bits`.
+pub(super) fn pack_row(row: &[u32], bits: u8, out: &mut [u8]) {
+    if bits == 8 {
+        for (o, &i) in out.iter_mut().zip(row) {
+            *o = i as u8;
+        }
+        return;
+    }
+    let bits = usize::from(bits);
+    for (x, &i) in row.iter().enumerate() {
+        let bit = x * bits;
+        let shift = 8 - bits - bit % 8;
+        out[bit / 8] |= (i as u8) << shift;
+    }
 }
 
 /// An indexed image and its palette, ready to be written as C source by

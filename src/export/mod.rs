@@ -19,6 +19,7 @@
 
 mod curve_table;
 mod firmware;
+mod idat;
 mod plot;
 mod png;
 mod records;

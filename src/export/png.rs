@@ -7,16 +7,17 @@
 //! indices, never opens files (it writes to the writer it is given; make
 //! that an [`crate::atomic::AtomicFile`] for files).
 //!
-//! Indexed rows are packed by [`crate::export::pack_rows`], whose bit order
-//! is PNG's (specification section 7.2), and written without filtering,
-//! which the PNG specification (section 12.8) recommends for palette
-//! images.
+//! Indexed rows are packed in the bit order of [`crate::export::pack_rows`],
+//! which is PNG's (specification section 7.2), and written without
+//! filtering, which the PNG specification (section 12.8) recommends for
+//! palette images. Their image data is compressed in pieces on several
+//! threads (`idat.rs`); the `png` crate writes the chunks around it.
 
 use std::io::Write;
 
-use ::png::{BitDepth, ColorType, Encoder, EncodingError, Filter};
+use ::png::{chunk, BitDepth, ColorType, Encoder, EncodingError};
 
-use super::firmware::pack_rows;
+use super::idat::{zlib_pieces, PIECE_BYTES};
 use crate::error::{Error, ErrorKind, Result};
 
 const STAGE: &str = "writing image";
@@ -27,6 +28,23 @@ const MAX_SIDE: u32 = (1 << 31) - 1;
 
 /// The most palette entries PNG allows (PNG specification, section 11.2.3).
 pub const MAX_PALETTE: usize = 256;
+
+/// How an indexed image's data is cut: compressed in pieces of about
+/// `piece_bytes` uncompressed bytes, written in IDAT chunks of at most
+/// `max_chunk` bytes. Tests use small values to get several of each.
+#[derive(Debug, Clone, Copy)]
+struct IdatLayout {
+    piece_bytes: usize,
+    max_chunk: usize,
+}
+
+/// The layout of every file: one IDAT chunk per piece, since no piece comes
+/// near the longest chunk data PNG allows, 2^31 − 1 bytes (PNG
+/// specification, section 5.3), unless a single row does.
+const IDAT_LAYOUT: IdatLayout = IdatLayout {
+    piece_bytes: PIECE_BYTES,
+    max_chunk: (1 << 31) - 1,
+};
 
 /// The smallest PNG bit depth whose indices reach every entry of a palette
 /// of `palette_len` colours: 1 for up to 2, 2 for up to 4, 4 for up to 16,
@@ -123,6 +141,19 @@ pub fn write_indexed_png(
     alpha: Option<&[u8]>,
     indices: &[u32],
 ) -> Result<()> {
+    write_indexed_png_as(w, width, height, palette, alpha, indices, IDAT_LAYOUT)
+}
+
+/// [`write_indexed_png`] with the image data cut as `layout` says.
+fn write_indexed_png_as(
+    w: impl Write,
+    width: u32,
+    height: u32,
+    palette: &[[u8; 3]],
+    alpha: Option<&[u8]>,
+    indices: &[u32],
+    layout: IdatLayout,
+) -> Result<()> {
     if palette.is_empty() || palette.len() > MAX_PALETTE {
         return Err(invalid(format!(
             "a PNG palette has 1 to {MAX_PALETTE} entries, got {}",
@@ -147,13 +178,12 @@ pub fn write_indexed_png(
         )));
     }
     let bits = bit_depth_for(palette.len());
-    let packed = pack_rows(indices, width, height, bits)?;
+    let pieces = zlib_pieces(indices, width, bits, layout.piece_bytes)?;
 
     let mut encoder = Encoder::new(w, width, height);
     encoder.set_color(ColorType::Indexed);
     // `bits` is 1, 2, 4 or 8, all valid PNG depths.
     encoder.set_depth(BitDepth::from_u8(bits).unwrap_or(BitDepth::Eight));
-    encoder.set_filter(Filter::NoFilter);
     encoder.set_palette(palette.as_flattened().to_vec());
     if let Some(alpha) = alpha {
         let kept = alpha.iter().rposition(|&a| a != 255).map_or(0, |i| i + 1);
@@ -161,7 +191,18 @@ pub fn write_indexed_png(
             encoder.set_trns(alpha[..kept].to_vec());
         }
     }
-    encode(encoder, &packed)
+    // IHDR, PLTE and tRNS, then our IDAT chunks, which together hold one
+    // zlib stream however it is divided (section 10.2), then IEND.
+    let mut writer = encoder.write_header().map_err(encoding_error)?;
+    for data in pieces
+        .iter()
+        .flat_map(|piece| piece.chunks(layout.max_chunk))
+    {
+        writer
+            .write_chunk(chunk::IDAT, data)
+            .map_err(encoding_error)?;
+    }
+    writer.finish().map_err(encoding_error)
 }
 
 /// Writes a true-colour PNG (colour type 2, 8 bits per channel) of

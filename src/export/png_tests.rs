@@ -147,6 +147,101 @@ fn indexed_png_round_trips_at_the_smallest_depth() {
     }
 }
 
+/// The indexed PNG as the `png` crate's own encoder writes it from the rows
+/// of [`crate::export::pack_rows`] (one zlib stream, no filtering): the
+/// reference our pieces must decode to.
+fn png_crate_indexed(
+    width: u32,
+    height: u32,
+    palette: &[[u8; 3]],
+    trns: Option<&[u8]>,
+    indices: &[u32],
+) -> Vec<u8> {
+    let bits = bit_depth_for(palette.len());
+    let packed = crate::export::pack_rows(indices, width, height, bits).unwrap();
+    let mut bytes = Vec::new();
+    let mut encoder = Encoder::new(&mut bytes, width, height);
+    encoder.set_color(ColorType::Indexed);
+    encoder.set_depth(BitDepth::from_u8(bits).unwrap());
+    encoder.set_filter(::png::Filter::NoFilter);
+    encoder.set_palette(palette.as_flattened().to_vec());
+    if let Some(trns) = trns {
+        encoder.set_trns(trns.to_vec());
+    }
+    let mut writer = encoder.write_header().unwrap();
+    writer.write_image_data(&packed).unwrap();
+    writer.finish().unwrap();
+    bytes
+}
+
+#[test]
+fn pieces_decode_as_the_png_crate_encoder_does() {
+    // Small pieces and chunks force the several-piece, several-chunk paths
+    // on small images; the default layout writes them in one piece.
+    let layouts = [
+        IDAT_LAYOUT,
+        IdatLayout {
+            piece_bytes: 1,
+            max_chunk: 1 << 20,
+        },
+        IdatLayout {
+            piece_bytes: 40,
+            max_chunk: 7,
+        },
+        IdatLayout {
+            piece_bytes: 300,
+            max_chunk: 1 << 20,
+        },
+    ];
+    // Widths that leave padding bits at 1, 2 and 4 bits (section 7.2).
+    for (width, height) in [(1u32, 1u32), (1, 9), (9, 1), (13, 17), (67, 31)] {
+        for n in [1usize, 2, 3, 4, 7, 16, 17, 200, 256] {
+            let palette = palette_of(n);
+            let indices: Vec<u32> = (0..width * height)
+                .map(|i| (i * i / 3 + i / width) % n as u32)
+                .collect();
+            let alpha: Vec<u8> = (0..n).map(|i| if i % 3 == 1 { 40 } else { 255 }).collect();
+            let kept = alpha.iter().rposition(|&a| a != 255).map(|i| &alpha[..=i]);
+            for (alpha, trns) in [(None, None), (Some(&alpha[..]), kept)] {
+                let reference = png_crate_indexed(width, height, &palette, trns, &indices);
+                let want = decode_indexed(&reference);
+                let from_image = read_image(&reference, "ref.png", &ImageLimits::default())
+                    .unwrap()
+                    .pixels;
+                for layout in layouts {
+                    let what = format!("{width} × {height}, {n} entries, {trns:?}, {layout:?}");
+                    let mut bytes = Vec::new();
+                    write_indexed_png_as(
+                        &mut bytes, width, height, &palette, alpha, &indices, layout,
+                    )
+                    .unwrap();
+                    // Decoded by the png crate: same depth, palette, tRNS and
+                    // indices as the png crate's own encoding.
+                    let got = decode_indexed(&bytes);
+                    assert_eq!(got.bit_depth, want.bit_depth, "{what}");
+                    assert_eq!(got.palette, want.palette, "{what}");
+                    assert_eq!(got.trns, want.trns, "{what}");
+                    assert_eq!(got.indices, want.indices, "{what}");
+                    assert_eq!(got.indices, indices, "{what}");
+                    // Decoded by the image crate: the same RGBA pixels.
+                    let image = read_image(&bytes, "ours.png", &ImageLimits::default()).unwrap();
+                    assert_eq!(image.pixels, from_image, "{what}");
+                    // Every chunk's CRC is right (checked by `chunks`), and
+                    // the IDAT chunks follow each other (section 5.6), none
+                    // longer than the layout allows.
+                    let chunks = chunks(&bytes);
+                    let idat: Vec<usize> = (0..chunks.len())
+                        .filter(|&i| &chunks[i].0 == b"IDAT")
+                        .collect();
+                    assert_eq!(idat.len(), idat[idat.len() - 1] - idat[0] + 1, "{what}");
+                    assert!(idat.iter().all(|&i| chunks[i].1.len() <= layout.max_chunk));
+                    assert_eq!(&chunks[chunks.len() - 1].0, b"IEND");
+                }
+            }
+        }
+    }
+}
+
 #[test]
 fn bit_depths_by_palette_length() {
     let depths: Vec<u8> = [1, 2, 3, 4, 5, 16, 17, 255, 256, 257]
