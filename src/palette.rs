@@ -48,9 +48,10 @@ impl Hasher for PackedKeyHasher {
     }
 }
 
-/// A map keyed by packed colours (and indices).
+/// A map keyed by packed colours.
 type PackedMap<V> = HashMap<u64, V, BuildHasherDefault<PackedKeyHasher>>;
 
+/// A colour as the integer that orders it (see [`colour_histogram`]).
 fn packed(px: [u8; 4]) -> u64 {
     u32::from_be_bytes(px) as u64
 }
@@ -320,14 +321,7 @@ impl PaletteInput {
                 colours.push((handled(c, config.alpha), n));
             }
         }
-        colours.sort_unstable();
-        colours.dedup_by(|later, kept| {
-            let same = later.0 == kept.0;
-            if same {
-                kept.1 += later.1;
-            }
-            same
-        });
+        add_up_by_key(&mut colours);
         if colours.is_empty() {
             return Err(Error::new(
                 STAGE,
@@ -812,7 +806,16 @@ pub struct ImageError {
     pub delta_e2000_p95: f64,
 }
 
-/// Measures `indices` (from [`Palette::map_image`]) against `image`.
+fn beyond_palette(index: u32) -> Error {
+    Error::new(
+        "measuring",
+        ErrorKind::Mismatch(format!("index {index} is beyond the palette")),
+    )
+}
+
+/// Measures `indices` (from [`Palette::map_image`]) against `image`, on
+/// all threads. For an undithered mapping, [`measure_colours`] gets the
+/// same figures from the distinct colours alone, much faster.
 pub fn measure(image: &RgbaImage, indices: &[u32], palette: &Palette) -> Result<ImageError> {
     if indices.len() != image.pixels.len() {
         return Err(Error::new(
@@ -824,15 +827,36 @@ pub fn measure(image: &RgbaImage, indices: &[u32], palette: &Palette) -> Result<
             )),
         ));
     }
-    let mut pairs: PackedMap<u64> = PackedMap::default();
-    for (p, &i) in image.pixels.iter().zip(indices) {
-        if palette.reserved_for(*p) == Some(i) {
-            continue;
-        }
-        *pairs
-            .entry(pair_key(handled(*p, palette.layout.alpha), i))
-            .or_insert(0) += 1;
+    if let Some(&i) = indices
+        .par_iter()
+        .find_first(|&&i| i as usize >= palette.entries.len())
+    {
+        return Err(beyond_palette(i));
     }
+    // One key per pixel, sorted so that equal pairs lie together; the
+    // pixels left out get a key above every real one (a real key needs an
+    // index of u32::MAX, beyond any palette).
+    const LEFT_OUT: u64 = u64::MAX;
+    let alpha = palette.layout.alpha;
+    let mut keys: Vec<u64> = image
+        .pixels
+        .par_iter()
+        .zip(indices)
+        .map(|(&p, &i)| {
+            if palette.reserved_for(p) == Some(i) {
+                LEFT_OUT
+            } else {
+                pair_key(handled(p, alpha), i)
+            }
+        })
+        .collect();
+    keys.par_sort_unstable();
+    let measured = keys.partition_point(|&k| k != LEFT_OUT);
+    let pairs = keys[..measured]
+        .chunk_by(|a, b| a == b)
+        .map(|run| (run[0], run.len() as u64))
+        .collect();
+    drop(keys);
     error_of_pairs(pairs, palette)
 }
 
@@ -865,66 +889,86 @@ pub fn measure_indexed(
             )),
         ));
     }
-    let mut pairs: PackedMap<u64> = PackedMap::default();
-    for (&(c, n), &i) in colours.iter().zip(indices) {
-        if palette.reserved_for(c) == Some(i) {
-            continue;
-        }
-        *pairs
-            .entry(pair_key(handled(c, palette.layout.alpha), i))
-            .or_insert(0) += n;
-    }
+    let alpha = palette.layout.alpha;
+    let mut pairs: Vec<(u64, u64)> = colours
+        .par_iter()
+        .zip(indices)
+        .filter(|(&(c, _), &i)| palette.reserved_for(c) != Some(i))
+        .map(|(&(c, n), &i)| (pair_key(handled(c, alpha), i), n))
+        .collect();
+    add_up_by_key(&mut pairs);
     error_of_pairs(pairs, palette)
 }
 
-/// The error figures of (colour after alpha handling, palette index) pairs
-/// ([`pair_key`]) → pixel count.
-fn error_of_pairs(pairs: PackedMap<u64>, palette: &Palette) -> Result<ImageError> {
+/// Sorts (key, count) pairs by key and merges equal keys, adding their
+/// counts. Distinct sorted colours that alpha handling leaves as they are
+/// (the opaque ones) come in order already, which is checked first.
+fn add_up_by_key<K: Ord + Copy + Send>(pairs: &mut Vec<(K, u64)>) {
+    if !pairs.is_sorted_by_key(|&(key, _)| key) {
+        pairs.par_sort_unstable_by_key(|&(key, _)| key);
+    }
+    pairs.dedup_by(|later, kept| {
+        let same = later.0 == kept.0;
+        if same {
+            kept.1 += later.1;
+        }
+        same
+    });
+}
+
+/// Pairs per piece of work while computing colour differences.
+const PAIRS_PER_TASK: usize = 1024;
+
+/// The error figures of distinct (colour after alpha handling, palette
+/// index) pairs ([`pair_key`]) with their pixel counts, sorted by key.
+fn error_of_pairs(pairs: Vec<(u64, u64)>, palette: &Palette) -> Result<ImageError> {
     let keep = palette.layout.alpha == AlphaMode::Keep;
     let channels = if keep { 4.0 } else { 3.0 };
-    // A fixed order, so the sums come out the same on every run.
-    let mut pairs: Vec<(u64, u64)> = pairs.into_iter().collect();
-    pairs.sort_unstable();
     if let Some(&(key, _)) = pairs
         .iter()
         .find(|(key, _)| *key as u32 as usize >= palette.entries.len())
     {
-        return Err(Error::new(
-            "measuring",
-            ErrorKind::Mismatch(format!("index {} is beyond the palette", key as u32)),
-        ));
+        return Err(beyond_palette(key as u32));
+    }
+    let used = if keep { 4 } else { 3 };
+    // Sums in key order, so they come out the same on every run.
+    let mut sq = 0.0f64;
+    let mut n = 0u64;
+    for &(key, count) in &pairs {
+        let c = unpacked(key >> 32);
+        let e = palette.entries[key as u32 as usize];
+        let s: f64 = (0..used)
+            .map(|ch| {
+                let d = c[ch] as f64 - e[ch] as f64;
+                d * d
+            })
+            .sum();
+        sq += s * count as f64;
+        n += count;
     }
     let entry_lab: Vec<[f64; 3]> = palette
         .entries
         .iter()
         .map(|e| rgb8_to_lab([e[0], e[1], e[2]]))
         .collect();
-    let used = if keep { 4 } else { 3 };
-    // Per pair: squared error summed over channels, and CIEDE2000.
-    let per_pair: Vec<(f64, f64, u64)> = pairs
+    // CIEDE2000 per pair. A colour's pairs are neighbours (several when
+    // dithered), so each task keeps the last colour's CIELAB.
+    let mut des: Vec<(f64, u64)> = pairs
         .par_iter()
-        .map(|&(key, count)| {
-            let c = unpacked(key >> 32);
-            let i = key as u32 as usize;
-            let e = palette.entries[i];
-            let s: f64 = (0..used)
-                .map(|ch| {
-                    let d = c[ch] as f64 - e[ch] as f64;
-                    d * d
-                })
-                .sum();
-            let de = delta_e2000(rgb8_to_lab([c[0], c[1], c[2]]), entry_lab[i]);
-            (s, de, count)
-        })
+        .with_min_len(PAIRS_PER_TASK)
+        .map_init(
+            || (u64::MAX, [0.0; 3]),
+            |last, &(key, count)| {
+                let colour = key >> 32;
+                if last.0 != colour {
+                    let c = unpacked(colour);
+                    *last = (colour, rgb8_to_lab([c[0], c[1], c[2]]));
+                }
+                (delta_e2000(last.1, entry_lab[key as u32 as usize]), count)
+            },
+        )
         .collect();
-    let mut sq = 0.0f64;
-    let mut n = 0u64;
-    let mut des: Vec<(f64, u64)> = Vec::with_capacity(per_pair.len());
-    for &(s, de, count) in &per_pair {
-        sq += s * count as f64;
-        n += count;
-        des.push((de, count));
-    }
+    drop(pairs);
     let mse = if n == 0 {
         0.0
     } else {
@@ -935,17 +979,7 @@ fn error_of_pairs(pairs: PackedMap<u64>, palette: &Palette) -> Result<ImageError
     } else {
         des.iter().map(|(d, c)| d * *c as f64).sum::<f64>() / n as f64
     };
-    des.sort_by(|a, b| a.0.total_cmp(&b.0));
-    let target = (0.95 * n as f64).ceil() as u64;
-    let mut seen = 0;
-    let mut p95 = 0.0;
-    for (d, c) in &des {
-        seen += c;
-        if seen >= target {
-            p95 = *d;
-            break;
-        }
-    }
+    let p95 = weighted_percentile(&mut des, (0.95 * n as f64).ceil() as u64);
     Ok(ImageError {
         pixels: n,
         mse,
@@ -953,6 +987,29 @@ fn error_of_pairs(pairs: PackedMap<u64>, palette: &Palette) -> Result<ImageError
         delta_e2000_mean: mean,
         delta_e2000_p95: p95,
     })
+}
+
+/// The smallest value whose weight, with the weights of all smaller
+/// values, reaches `target`: the value where the running weight first
+/// reaches `target` along `values` sorted by value. 0 when the weights
+/// never reach it. Reorders `values`; takes linear time (selection, not a
+/// full sort).
+fn weighted_percentile(values: &mut [(f64, u64)], mut target: u64) -> f64 {
+    let mut rest = values;
+    while !rest.is_empty() {
+        let mid = rest.len() / 2;
+        let (below, pivot, above) = rest.select_nth_unstable_by(mid, |a, b| a.0.total_cmp(&b.0));
+        let below_weight: u64 = below.iter().map(|v| v.1).sum();
+        if !below.is_empty() && target <= below_weight {
+            rest = below;
+        } else if target <= below_weight + pivot.1 {
+            return pivot.0;
+        } else {
+            target -= below_weight + pivot.1;
+            rest = above;
+        }
+    }
+    0.0
 }
 
 /// The pixels an index image stands for (8-bit RGBA).
@@ -972,3 +1029,7 @@ pub fn render(indices: &[u32], palette: &Palette) -> Result<Vec<[u8; 4]>> {
         })
         .collect()
 }
+
+#[cfg(test)]
+#[path = "palette_tests.rs"]
+mod tests;
