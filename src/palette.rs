@@ -4,9 +4,6 @@
 //! 8-bit sRGB and CIEDE2000. Pure: works on decoded images in memory; never
 //! opens files (see [`crate::load`] and [`crate::export`]).
 
-use std::collections::HashMap;
-use std::hash::{BuildHasherDefault, Hasher};
-
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
@@ -15,41 +12,11 @@ use crate::colour::{delta_e2000, rgb8_to_lab, ColourSpace, DisplayFormat, Grid};
 use crate::encode::Encoder;
 use crate::error::{Error, ErrorKind, Result};
 use crate::kmeans::{train_constrained, CheckedTrainConfig, Constraint, TrainEvent, TrainReport};
-use crate::load::{colour_histogram, RgbaImage};
+use crate::load::{colour_histogram, ColourIndex, RgbaImage};
 use crate::metrics::psnr_db;
 use crate::vectors::VectorSet;
 
 const STAGE: &str = "building palette";
-
-/// Hashes the packed integer keys of the colour maps below with one
-/// multiplication (Fibonacci hashing): keys are distinct small integers, not
-/// attacker-chosen, and a photo needs millions of lookups.
-#[derive(Default)]
-struct PackedKeyHasher(u64);
-
-impl Hasher for PackedKeyHasher {
-    fn finish(&self) -> u64 {
-        let h = self.0.wrapping_mul(0x9E37_79B9_7F4A_7C15);
-        h ^ (h >> 29)
-    }
-
-    fn write(&mut self, bytes: &[u8]) {
-        for &b in bytes {
-            self.0 = (self.0 << 8) | b as u64;
-        }
-    }
-
-    fn write_u32(&mut self, v: u32) {
-        self.0 = v as u64;
-    }
-
-    fn write_u64(&mut self, v: u64) {
-        self.0 = v;
-    }
-}
-
-/// A map keyed by packed colours.
-type PackedMap<V> = HashMap<u64, V, BuildHasherDefault<PackedKeyHasher>>;
 
 /// A colour as the integer that orders it (see [`colour_histogram`]).
 fn packed(px: [u8; 4]) -> u64 {
@@ -616,7 +583,7 @@ impl Palette {
             ));
         }
         Ok(match dither {
-            Dither::None => self.map_plain(image),
+            Dither::None => self.map_plain(image)?,
             Dither::FloydSteinberg => self.map_diffused(image),
             Dither::Bayer4 => self.map_ordered(image, 4),
             Dither::Bayer8 => self.map_ordered(image, 8),
@@ -640,19 +607,10 @@ impl Palette {
         colours.par_iter().map(|&(c, _)| self.index_of(c)).collect()
     }
 
-    fn map_plain(&self, image: &RgbaImage) -> Vec<u32> {
-        let hist = colour_histogram(image);
-        let index = self.indices_of(&hist);
-        let lookup: PackedMap<u32> = hist
-            .iter()
-            .zip(index)
-            .map(|(&(c, _), i)| (packed(c), i))
-            .collect();
-        image
-            .pixels
-            .par_iter()
-            .map(|&p| lookup[&packed(p)])
-            .collect()
+    /// Each distinct colour searched once, then handed to its pixels.
+    fn map_plain(&self, image: &RgbaImage) -> Result<Vec<u32>> {
+        let colours = ColourIndex::uncounted(image);
+        colours.per_pixel(&self.indices_of(colours.colours()))
     }
 
     fn map_diffused(&self, image: &RgbaImage) -> Vec<u32> {
