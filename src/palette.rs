@@ -764,13 +764,6 @@ pub struct ImageError {
     pub delta_e2000_p95: f64,
 }
 
-fn beyond_palette(index: u32) -> Error {
-    Error::new(
-        "measuring",
-        ErrorKind::Mismatch(format!("index {index} is beyond the palette")),
-    )
-}
-
 /// Measures `indices` (from [`Palette::map_image`]) against `image`, on
 /// all threads. For an undithered mapping, [`measure_colours`] gets the
 /// same figures from the distinct colours alone, much faster.
@@ -785,38 +778,66 @@ pub fn measure(image: &RgbaImage, indices: &[u32], palette: &Palette) -> Result<
             )),
         ));
     }
-    if let Some(&i) = indices
-        .par_iter()
-        .find_first(|&&i| i as usize >= palette.entries.len())
-    {
-        return Err(beyond_palette(i));
-    }
-    // One key per pixel, sorted so that equal pairs lie together; the
-    // pixels left out get a key above every real one (a real key needs an
-    // index of u32::MAX, beyond any palette).
-    const LEFT_OUT: u64 = u64::MAX;
+    // Each piece of the image sorts its keys and counts their runs; the
+    // pieces' sorted counts are merged pairwise, so no more than the
+    // distinct pairs of a few pieces is held at once.
     let alpha = palette.layout.alpha;
-    let mut keys: Vec<u64> = image
+    let pairs = image
         .pixels
-        .par_iter()
-        .zip(indices)
-        .map(|(&p, &i)| {
-            if palette.reserved_for(p) == Some(i) {
-                LEFT_OUT
-            } else {
-                pair_key(handled(p, alpha), i)
-            }
+        .par_chunks(MEASURE_PIXELS)
+        .zip(indices.par_chunks(MEASURE_PIXELS))
+        .map(|(pixels, indices)| {
+            let mut keys: Vec<u64> = pixels
+                .iter()
+                .zip(indices)
+                .filter(|&(&p, &i)| palette.reserved_for(p) != Some(i))
+                .map(|(&p, &i)| pair_key(handled(p, alpha), i))
+                .collect();
+            keys.sort_unstable();
+            keys.chunk_by(|a, b| a == b)
+                .map(|run| (run[0], run.len() as u64))
+                .collect()
         })
-        .collect();
-    keys.par_sort_unstable();
-    let measured = keys.partition_point(|&k| k != LEFT_OUT);
-    let pairs = keys[..measured]
-        .chunk_by(|a, b| a == b)
-        .map(|run| (run[0], run.len() as u64))
-        .collect();
-    drop(keys);
+        .reduce(Vec::new, merge_counts);
     error_of_pairs(pairs, palette)
 }
+
+/// Two lists of (key, count), each sorted by distinct keys, as one such
+/// list: the counts of a key in both are added.
+fn merge_counts(a: Vec<(u64, u64)>, b: Vec<(u64, u64)>) -> Vec<(u64, u64)> {
+    if a.is_empty() {
+        return b;
+    }
+    if b.is_empty() {
+        return a;
+    }
+    let mut out = Vec::with_capacity(a.len() + b.len());
+    let (mut i, mut j) = (0, 0);
+    while i < a.len() && j < b.len() {
+        match a[i].0.cmp(&b[j].0) {
+            std::cmp::Ordering::Less => {
+                out.push(a[i]);
+                i += 1;
+            }
+            std::cmp::Ordering::Greater => {
+                out.push(b[j]);
+                j += 1;
+            }
+            std::cmp::Ordering::Equal => {
+                out.push((a[i].0, a[i].1 + b[j].1));
+                i += 1;
+                j += 1;
+            }
+        }
+    }
+    out.extend_from_slice(&a[i..]);
+    out.extend_from_slice(&b[j..]);
+    out
+}
+
+/// Pixels per piece of work in [`measure`]: their keys fit in a core's
+/// cache while they are sorted.
+const MEASURE_PIXELS: usize = 1 << 15;
 
 /// A (colour after alpha handling, palette index) pair as one key.
 fn pair_key(c: [u8; 4], i: u32) -> u64 {
@@ -886,7 +907,10 @@ fn error_of_pairs(pairs: Vec<(u64, u64)>, palette: &Palette) -> Result<ImageErro
         .iter()
         .find(|(key, _)| *key as u32 as usize >= palette.entries.len())
     {
-        return Err(beyond_palette(key as u32));
+        return Err(Error::new(
+            "measuring",
+            ErrorKind::Mismatch(format!("index {} is beyond the palette", key as u32)),
+        ));
     }
     let used = if keep { 4 } else { 3 };
     // Sums in key order, so they come out the same on every run.
