@@ -613,6 +613,30 @@ impl Palette {
         colours.per_pixel(&self.indices_of(colours.colours()))
     }
 
+    /// [`Palette::map_image`] and [`measure`] in one step. Without
+    /// dithering, every distinct colour is searched and measured once
+    /// ([`Palette::map_colours`]); the figures are those [`measure`] gives.
+    pub fn map_measured(&self, image: &RgbaImage, dither: Dither) -> Result<MappedImage> {
+        if dither == Dither::None {
+            return self.map_colours(&ColourIndex::new(image));
+        }
+        let indices = self.map_image(image, dither)?;
+        let error = measure(image, &indices, self)?;
+        Ok(MappedImage { indices, error })
+    }
+
+    /// The image `colours` indexes mapped without dithering and measured:
+    /// each distinct colour is searched once ([`Palette::indices_of`]) and
+    /// measured once ([`measure_indexed`]), then its index is handed to its
+    /// pixels. Indices and figures equal those of [`Palette::map_image`]
+    /// with [`Dither::None`] followed by [`measure`].
+    pub fn map_colours(&self, colours: &ColourIndex) -> Result<MappedImage> {
+        let per_colour = self.indices_of(colours.colours());
+        let error = measure_indexed(colours.colours(), &per_colour, self)?;
+        let indices = colours.per_pixel(&per_colour)?;
+        Ok(MappedImage { indices, error })
+    }
+
     fn map_diffused(&self, image: &RgbaImage) -> Vec<u32> {
         let (w, h) = (image.width as usize, image.height as usize);
         let d = self.layout.dimension();
@@ -764,9 +788,18 @@ pub struct ImageError {
     pub delta_e2000_p95: f64,
 }
 
+/// An image mapped to a palette, and how far the result is from it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct MappedImage {
+    /// Palette index of every pixel, row by row.
+    pub indices: Vec<u32>,
+    /// The error of the mapped image, as [`measure`] gives it.
+    pub error: ImageError,
+}
+
 /// Measures `indices` (from [`Palette::map_image`]) against `image`, on
-/// all threads. For an undithered mapping, [`measure_colours`] gets the
-/// same figures from the distinct colours alone, much faster.
+/// all threads. For an undithered mapping, [`Palette::map_colours`] gets
+/// the same figures from the distinct colours alone, much faster.
 pub fn measure(image: &RgbaImage, indices: &[u32], palette: &Palette) -> Result<ImageError> {
     if indices.len() != image.pixels.len() {
         return Err(Error::new(

@@ -140,6 +140,8 @@ fn plain_mapping_is_index_of_every_pixel() {
             want,
             "case {n}"
         );
+        let mapped = palette.map_colours(&ColourIndex::new(image)).unwrap();
+        assert_eq!(mapped.indices, want, "case {n}");
     }
 }
 
@@ -154,6 +156,9 @@ fn measuring_the_distinct_colours_equals_measuring_every_pixel() {
             &format!("case {n}"),
         );
         // The same pairs reach the same sums in the same order: equal bits.
+        let mapped = palette.map_measured(image, Dither::None).unwrap();
+        assert_eq!(mapped.indices, indices, "case {n}");
+        assert_eq!(mapped.error, every_pixel, "case {n}");
         let colours = colour_histogram(image);
         assert_eq!(
             measure_colours(&colours, palette).unwrap(),
@@ -167,10 +172,11 @@ fn measuring_the_distinct_colours_equals_measuring_every_pixel() {
 fn measuring_dithered_pixels_matches_the_pixel_by_pixel_figures() {
     for (n, (image, palette)) in cases().iter().enumerate().step_by(2) {
         for dither in [Dither::FloydSteinberg, Dither::Bayer4] {
-            let indices = palette.map_image(image, dither).unwrap();
+            let mapped = palette.map_measured(image, dither).unwrap();
+            assert_eq!(mapped.indices, palette.map_image(image, dither).unwrap());
             assert_close(
-                &measure(image, &indices, palette).unwrap(),
-                &error_pixel_by_pixel(image, &indices, palette),
+                &mapped.error,
+                &error_pixel_by_pixel(image, &mapped.indices, palette),
                 &format!("case {n}, {dither:?}"),
             );
         }
