@@ -4,9 +4,6 @@
 //! 8-bit sRGB and CIEDE2000. Pure: works on decoded images in memory; never
 //! opens files (see [`crate::load`] and [`crate::export`]).
 
-use std::collections::HashMap;
-use std::hash::{BuildHasherDefault, Hasher};
-
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
@@ -15,42 +12,13 @@ use crate::colour::{delta_e2000, rgb8_to_lab, ColourSpace, DisplayFormat, Grid};
 use crate::encode::{Encoder, Nearest, CHUNK_ROWS};
 use crate::error::{Error, ErrorKind, Result};
 use crate::kmeans::{train_constrained, CheckedTrainConfig, Constraint, TrainEvent, TrainReport};
-use crate::load::{colour_histogram, RgbaImage};
+use crate::load::{colour_histogram, ColourIndex, RgbaImage};
 use crate::metrics::psnr_db;
 use crate::vectors::VectorSet;
 
 const STAGE: &str = "building palette";
 
-/// Hashes the packed integer keys of the colour maps below with one
-/// multiplication (Fibonacci hashing): keys are distinct small integers, not
-/// attacker-chosen, and a photo needs millions of lookups.
-#[derive(Default)]
-struct PackedKeyHasher(u64);
-
-impl Hasher for PackedKeyHasher {
-    fn finish(&self) -> u64 {
-        let h = self.0.wrapping_mul(0x9E37_79B9_7F4A_7C15);
-        h ^ (h >> 29)
-    }
-
-    fn write(&mut self, bytes: &[u8]) {
-        for &b in bytes {
-            self.0 = (self.0 << 8) | b as u64;
-        }
-    }
-
-    fn write_u32(&mut self, v: u32) {
-        self.0 = v as u64;
-    }
-
-    fn write_u64(&mut self, v: u64) {
-        self.0 = v;
-    }
-}
-
-/// A map keyed by packed colours (and indices).
-type PackedMap<V> = HashMap<u64, V, BuildHasherDefault<PackedKeyHasher>>;
-
+/// A colour as the integer that orders it (see [`colour_histogram`]).
 fn packed(px: [u8; 4]) -> u64 {
     u32::from_be_bytes(px) as u64
 }
@@ -320,14 +288,7 @@ impl PaletteInput {
                 colours.push((handled(c, config.alpha), n));
             }
         }
-        colours.sort_unstable();
-        colours.dedup_by(|later, kept| {
-            let same = later.0 == kept.0;
-            if same {
-                kept.1 += later.1;
-            }
-            same
-        });
+        add_up_by_key(&mut colours);
         if colours.is_empty() {
             return Err(Error::new(
                 STAGE,
@@ -622,7 +583,7 @@ impl Palette {
             ));
         }
         Ok(match dither {
-            Dither::None => self.map_plain(image),
+            Dither::None => self.map_plain(image)?,
             Dither::FloydSteinberg => self.map_diffused(image),
             Dither::Bayer4 => self.map_ordered(image, 4),
             Dither::Bayer8 => self.map_ordered(image, 8),
@@ -671,19 +632,34 @@ impl Palette {
         out
     }
 
-    fn map_plain(&self, image: &RgbaImage) -> Vec<u32> {
-        let hist = colour_histogram(image);
-        let index = self.indices_of(&hist);
-        let lookup: PackedMap<u32> = hist
-            .iter()
-            .zip(index)
-            .map(|(&(c, _), i)| (packed(c), i))
-            .collect();
-        image
-            .pixels
-            .par_iter()
-            .map(|&p| lookup[&packed(p)])
-            .collect()
+    /// Each distinct colour searched once, then handed to its pixels.
+    fn map_plain(&self, image: &RgbaImage) -> Result<Vec<u32>> {
+        let colours = ColourIndex::uncounted(image);
+        colours.per_pixel(&self.indices_of(colours.colours()))
+    }
+
+    /// [`Palette::map_image`] and [`measure`] in one step. Without
+    /// dithering, every distinct colour is searched and measured once
+    /// ([`Palette::map_colours`]); the figures are those [`measure`] gives.
+    pub fn map_measured(&self, image: &RgbaImage, dither: Dither) -> Result<MappedImage> {
+        if dither == Dither::None {
+            return self.map_colours(&ColourIndex::new(image));
+        }
+        let indices = self.map_image(image, dither)?;
+        let error = measure(image, &indices, self)?;
+        Ok(MappedImage { indices, error })
+    }
+
+    /// The image `colours` indexes mapped without dithering and measured:
+    /// each distinct colour is searched once ([`Palette::indices_of`]) and
+    /// measured once ([`measure_indexed`]), then its index is handed to its
+    /// pixels. Indices and figures equal those of [`Palette::map_image`]
+    /// with [`Dither::None`] followed by [`measure`].
+    pub fn map_colours(&self, colours: &ColourIndex) -> Result<MappedImage> {
+        let per_colour = self.indices_of(colours.colours());
+        let error = measure_indexed(colours.colours(), &per_colour, self)?;
+        let indices = colours.per_pixel(&per_colour)?;
+        Ok(MappedImage { indices, error })
     }
 
     fn map_diffused(&self, image: &RgbaImage) -> Vec<u32> {
@@ -837,7 +813,18 @@ pub struct ImageError {
     pub delta_e2000_p95: f64,
 }
 
-/// Measures `indices` (from [`Palette::map_image`]) against `image`.
+/// An image mapped to a palette, and how far the result is from it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct MappedImage {
+    /// Palette index of every pixel, row by row.
+    pub indices: Vec<u32>,
+    /// The error of the mapped image, as [`measure`] gives it.
+    pub error: ImageError,
+}
+
+/// Measures `indices` (from [`Palette::map_image`]) against `image`, on
+/// all threads. For an undithered mapping, [`Palette::map_colours`] gets
+/// the same figures from the distinct colours alone, much faster.
 pub fn measure(image: &RgbaImage, indices: &[u32], palette: &Palette) -> Result<ImageError> {
     if indices.len() != image.pixels.len() {
         return Err(Error::new(
@@ -849,17 +836,66 @@ pub fn measure(image: &RgbaImage, indices: &[u32], palette: &Palette) -> Result<
             )),
         ));
     }
-    let mut pairs: PackedMap<u64> = PackedMap::default();
-    for (p, &i) in image.pixels.iter().zip(indices) {
-        if palette.reserved_for(*p) == Some(i) {
-            continue;
-        }
-        *pairs
-            .entry(pair_key(handled(*p, palette.layout.alpha), i))
-            .or_insert(0) += 1;
-    }
+    // Each piece of the image sorts its keys and counts their runs; the
+    // pieces' sorted counts are merged pairwise, so no more than the
+    // distinct pairs of a few pieces is held at once.
+    let alpha = palette.layout.alpha;
+    let pairs = image
+        .pixels
+        .par_chunks(MEASURE_PIXELS)
+        .zip(indices.par_chunks(MEASURE_PIXELS))
+        .map(|(pixels, indices)| {
+            let mut keys: Vec<u64> = pixels
+                .iter()
+                .zip(indices)
+                .filter(|&(&p, &i)| palette.reserved_for(p) != Some(i))
+                .map(|(&p, &i)| pair_key(handled(p, alpha), i))
+                .collect();
+            keys.sort_unstable();
+            keys.chunk_by(|a, b| a == b)
+                .map(|run| (run[0], run.len() as u64))
+                .collect()
+        })
+        .reduce(Vec::new, merge_counts);
     error_of_pairs(pairs, palette)
 }
+
+/// Two lists of (key, count), each sorted by distinct keys, as one such
+/// list: the counts of a key in both are added.
+fn merge_counts(a: Vec<(u64, u64)>, b: Vec<(u64, u64)>) -> Vec<(u64, u64)> {
+    if a.is_empty() {
+        return b;
+    }
+    if b.is_empty() {
+        return a;
+    }
+    let mut out = Vec::with_capacity(a.len() + b.len());
+    let (mut i, mut j) = (0, 0);
+    while i < a.len() && j < b.len() {
+        match a[i].0.cmp(&b[j].0) {
+            std::cmp::Ordering::Less => {
+                out.push(a[i]);
+                i += 1;
+            }
+            std::cmp::Ordering::Greater => {
+                out.push(b[j]);
+                j += 1;
+            }
+            std::cmp::Ordering::Equal => {
+                out.push((a[i].0, a[i].1 + b[j].1));
+                i += 1;
+                j += 1;
+            }
+        }
+    }
+    out.extend_from_slice(&a[i..]);
+    out.extend_from_slice(&b[j..]);
+    out
+}
+
+/// Pixels per piece of work in [`measure`]: their keys fit in a core's
+/// cache while they are sorted.
+const MEASURE_PIXELS: usize = 1 << 15;
 
 /// A (colour after alpha handling, palette index) pair as one key.
 fn pair_key(c: [u8; 4], i: u32) -> u64 {
@@ -890,26 +926,41 @@ pub fn measure_indexed(
             )),
         ));
     }
-    let mut pairs: PackedMap<u64> = PackedMap::default();
-    for (&(c, n), &i) in colours.iter().zip(indices) {
-        if palette.reserved_for(c) == Some(i) {
-            continue;
-        }
-        *pairs
-            .entry(pair_key(handled(c, palette.layout.alpha), i))
-            .or_insert(0) += n;
-    }
+    let alpha = palette.layout.alpha;
+    let mut pairs: Vec<(u64, u64)> = colours
+        .par_iter()
+        .zip(indices)
+        .filter(|(&(c, _), &i)| palette.reserved_for(c) != Some(i))
+        .map(|(&(c, n), &i)| (pair_key(handled(c, alpha), i), n))
+        .collect();
+    add_up_by_key(&mut pairs);
     error_of_pairs(pairs, palette)
 }
 
-/// The error figures of (colour after alpha handling, palette index) pairs
-/// ([`pair_key`]) → pixel count.
-fn error_of_pairs(pairs: PackedMap<u64>, palette: &Palette) -> Result<ImageError> {
+/// Sorts (key, count) pairs by key and merges equal keys, adding their
+/// counts. Distinct sorted colours that alpha handling leaves as they are
+/// (the opaque ones) come in order already, which is checked first.
+fn add_up_by_key<K: Ord + Copy + Send>(pairs: &mut Vec<(K, u64)>) {
+    if !pairs.is_sorted_by_key(|&(key, _)| key) {
+        pairs.par_sort_unstable_by_key(|&(key, _)| key);
+    }
+    pairs.dedup_by(|later, kept| {
+        let same = later.0 == kept.0;
+        if same {
+            kept.1 += later.1;
+        }
+        same
+    });
+}
+
+/// Pairs per piece of work while computing colour differences.
+const PAIRS_PER_TASK: usize = 1024;
+
+/// The error figures of distinct (colour after alpha handling, palette
+/// index) pairs ([`pair_key`]) with their pixel counts, sorted by key.
+fn error_of_pairs(pairs: Vec<(u64, u64)>, palette: &Palette) -> Result<ImageError> {
     let keep = palette.layout.alpha == AlphaMode::Keep;
     let channels = if keep { 4.0 } else { 3.0 };
-    // A fixed order, so the sums come out the same on every run.
-    let mut pairs: Vec<(u64, u64)> = pairs.into_iter().collect();
-    pairs.sort_unstable();
     if let Some(&(key, _)) = pairs
         .iter()
         .find(|(key, _)| *key as u32 as usize >= palette.entries.len())
@@ -919,37 +970,45 @@ fn error_of_pairs(pairs: PackedMap<u64>, palette: &Palette) -> Result<ImageError
             ErrorKind::Mismatch(format!("index {} is beyond the palette", key as u32)),
         ));
     }
+    let used = if keep { 4 } else { 3 };
+    // Sums in key order, so they come out the same on every run.
+    let mut sq = 0.0f64;
+    let mut n = 0u64;
+    for &(key, count) in &pairs {
+        let c = unpacked(key >> 32);
+        let e = palette.entries[key as u32 as usize];
+        let s: f64 = (0..used)
+            .map(|ch| {
+                let d = c[ch] as f64 - e[ch] as f64;
+                d * d
+            })
+            .sum();
+        sq += s * count as f64;
+        n += count;
+    }
     let entry_lab: Vec<[f64; 3]> = palette
         .entries
         .iter()
         .map(|e| rgb8_to_lab([e[0], e[1], e[2]]))
         .collect();
-    let used = if keep { 4 } else { 3 };
-    // Per pair: squared error summed over channels, and CIEDE2000.
-    let per_pair: Vec<(f64, f64, u64)> = pairs
+    // CIEDE2000 per pair. A colour's pairs are neighbours (several when
+    // dithered), so each task keeps the last colour's CIELAB.
+    let mut des: Vec<(f64, u64)> = pairs
         .par_iter()
-        .map(|&(key, count)| {
-            let c = unpacked(key >> 32);
-            let i = key as u32 as usize;
-            let e = palette.entries[i];
-            let s: f64 = (0..used)
-                .map(|ch| {
-                    let d = c[ch] as f64 - e[ch] as f64;
-                    d * d
-                })
-                .sum();
-            let de = delta_e2000(rgb8_to_lab([c[0], c[1], c[2]]), entry_lab[i]);
-            (s, de, count)
-        })
+        .with_min_len(PAIRS_PER_TASK)
+        .map_init(
+            || (u64::MAX, [0.0; 3]),
+            |last, &(key, count)| {
+                let colour = key >> 32;
+                if last.0 != colour {
+                    let c = unpacked(colour);
+                    *last = (colour, rgb8_to_lab([c[0], c[1], c[2]]));
+                }
+                (delta_e2000(last.1, entry_lab[key as u32 as usize]), count)
+            },
+        )
         .collect();
-    let mut sq = 0.0f64;
-    let mut n = 0u64;
-    let mut des: Vec<(f64, u64)> = Vec::with_capacity(per_pair.len());
-    for &(s, de, count) in &per_pair {
-        sq += s * count as f64;
-        n += count;
-        des.push((de, count));
-    }
+    drop(pairs);
     let mse = if n == 0 {
         0.0
     } else {
@@ -960,17 +1019,7 @@ fn error_of_pairs(pairs: PackedMap<u64>, palette: &Palette) -> Result<ImageError
     } else {
         des.iter().map(|(d, c)| d * *c as f64).sum::<f64>() / n as f64
     };
-    des.sort_by(|a, b| a.0.total_cmp(&b.0));
-    let target = (0.95 * n as f64).ceil() as u64;
-    let mut seen = 0;
-    let mut p95 = 0.0;
-    for (d, c) in &des {
-        seen += c;
-        if seen >= target {
-            p95 = *d;
-            break;
-        }
-    }
+    let p95 = weighted_percentile(&mut des, (0.95 * n as f64).ceil() as u64);
     Ok(ImageError {
         pixels: n,
         mse,
@@ -978,6 +1027,29 @@ fn error_of_pairs(pairs: PackedMap<u64>, palette: &Palette) -> Result<ImageError
         delta_e2000_mean: mean,
         delta_e2000_p95: p95,
     })
+}
+
+/// The smallest value whose weight, with the weights of all smaller
+/// values, reaches `target`: the value where the running weight first
+/// reaches `target` along `values` sorted by value. 0 when the weights
+/// never reach it. Reorders `values`; takes linear time (selection, not a
+/// full sort).
+fn weighted_percentile(values: &mut [(f64, u64)], mut target: u64) -> f64 {
+    let mut rest = values;
+    while !rest.is_empty() {
+        let mid = rest.len() / 2;
+        let (below, pivot, above) = rest.select_nth_unstable_by(mid, |a, b| a.0.total_cmp(&b.0));
+        let below_weight: u64 = below.iter().map(|v| v.1).sum();
+        if !below.is_empty() && target <= below_weight {
+            rest = below;
+        } else if target <= below_weight + pivot.1 {
+            return pivot.0;
+        } else {
+            target -= below_weight + pivot.1;
+            rest = above;
+        }
+    }
+    0.0
 }
 
 /// The pixels an index image stands for (8-bit RGBA).
@@ -997,3 +1069,7 @@ pub fn render(indices: &[u32], palette: &Palette) -> Result<Vec<[u8; 4]>> {
         })
         .collect()
 }
+
+#[cfg(test)]
+#[path = "palette_tests.rs"]
+mod tests;

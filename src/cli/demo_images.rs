@@ -19,7 +19,7 @@ use vqforge::export::{bit_depth_for, c_identifier, pack_rows, packed_row_bytes};
 use vqforge::kmeans::TrainConfig;
 use vqforge::load::RgbaImage;
 use vqforge::palette::{
-    hex, measure, train_palette, AlphaMode, Dither, ImageError, Palette, PaletteConfig,
+    hex, train_palette, AlphaMode, Dither, ImageError, MappedImage, Palette, PaletteConfig,
 };
 
 use super::args::DemoArgs;
@@ -99,8 +99,7 @@ fn map_and_write(
     dither: Dither,
     png: &Path,
 ) -> Result<(Asset, Vec<u32>)> {
-    let indices = palette.map_image(&image, dither)?;
-    let error = measure(&image, &indices, palette)?;
+    let MappedImage { indices, error } = palette.map_measured(&image, dither)?;
     let png_bytes = write_png(png, &image, &indices, palette)?;
     let bits = bit_depth_for(palette.len());
     let packed_bytes = packed_row_bytes(image.width, bits) * u64::from(image.height);

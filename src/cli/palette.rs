@@ -16,11 +16,11 @@ use vqforge::export::{
 };
 use vqforge::format::{self, ImageInfo, StreamHeader};
 use vqforge::kmeans::{Effort, TrainEvent, TrainReport, QUICK_REFINE_PASSES};
-use vqforge::load::{read_image, ImageLimits, RgbaImage};
+use vqforge::load::{read_image, ColourIndex, ImageLimits, RgbaImage};
 use vqforge::metrics;
 use vqforge::palette::{
-    hex, measure, parse_hex, render, train_palette, AlphaMode, Dither, ImageError, Palette,
-    PaletteConfig, PaletteOrder,
+    hex, parse_hex, render, train_input, train_palette, AlphaMode, Dither, ImageError, MappedImage,
+    Palette, PaletteConfig, PaletteInput, PaletteOrder,
 };
 
 use super::args::{
@@ -373,14 +373,29 @@ pub fn run(a: PaletteArgs) -> Result<()> {
     let config = palette_config(a.size, &a.colour)?;
     let train = train_config(a.size, &a.kmeans, Effort::Quick)?.check()?;
     let image = load_image(&a.image, a.colour.max_pixels)?;
+    // Counted once: trained on, then (undithered) mapped and measured.
+    let colours = ColourIndex::new(&image);
     let bar = progress::spinner("fitting palette");
     let observe = spinner_observer(&bar, train.get().restarts);
-    let t = train_palette(std::slice::from_ref(&image), &config, &train, &observe)?;
+    let t = train_input(
+        &PaletteInput::from_histogram(colours.colours(), &config)?,
+        &config,
+        &train,
+        &observe,
+    )?;
     bar.set_message("mapping pixels");
     let palette = Palette::from_codebook(&t.codebook)?;
     let dither = dither_of(a.dither);
-    let indices = palette.map_image(&image, dither)?;
-    let err = measure(&image, &indices, &palette)?;
+    let MappedImage {
+        indices,
+        error: err,
+    } = match dither {
+        Dither::None => palette.map_colours(&colours)?,
+        _ => {
+            drop(colours);
+            palette.map_measured(&image, dither)?
+        }
+    };
     bar.finish_and_clear();
     let bits = bit_depth_for(palette.len());
     let png = png_bytes(&image, &indices, &palette)
@@ -579,8 +594,10 @@ pub fn encode_image(a: &EncodeArgs, book: &Codebook) -> Result<()> {
     }
     let image = load_image(&a.input, a.max_pixels)?;
     let dither = dither_of(a.dither.unwrap_or(DitherArg::None));
-    let indices = palette.map_image(&image, dither)?;
-    let err = measure(&image, &indices, &palette)?;
+    let MappedImage {
+        indices,
+        error: err,
+    } = palette.map_measured(&image, dither)?;
     let mut header = StreamHeader::for_codebook(book, indices.len() as u64, None)?;
     header.image = Some(ImageInfo {
         width: image.width,

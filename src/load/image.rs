@@ -1,7 +1,6 @@
 //! Loading images: decodes PNG, JPEG, BMP, TIFF and WebP bytes into one
 //! plain form, [`RgbaImage`] (8 bits per channel, straight alpha), after
-//! checking the size against [`ImageLimits`]; and counts the distinct
-//! colours of an image ([`colour_histogram`]).
+//! checking the size against [`ImageLimits`].
 //!
 //! It never opens files (the caller hands over the bytes and a name for
 //! messages), never changes colours beyond the bit-depth conversion that
@@ -11,7 +10,6 @@ use std::io::Cursor;
 
 use ::image::error::ImageError;
 use ::image::{ImageFormat, ImageReader};
-use rayon::slice::ParallelSliceMut;
 
 use crate::error::{Error, ErrorKind, Position, Result};
 
@@ -258,51 +256,6 @@ pub fn read_image(bytes: &[u8], source_name: &str, limits: &ImageLimits) -> Resu
         height,
         pixels: out,
     })
-}
-
-/// Packs a pixel into the `u32` that orders [`colour_histogram`]:
-/// `u32::from_be_bytes([r, g, b, a])`.
-fn pack(p: [u8; 4]) -> u32 {
-    u32::from_be_bytes(p)
-}
-
-/// Images with at least this many pixels are sorted on all threads.
-const PARALLEL_SORT_PIXELS: usize = 1 << 16;
-
-/// The distinct RGBA values of `image` with how many pixels have each.
-///
-/// Sorted by the colour packed as `u32::from_be_bytes([r, g, b, a])`, that
-/// is by red, then green, then blue, then alpha, so the result is the same
-/// for the same pixels in any order. Counts add up to the pixel count.
-/// Pixels that differ only in colour but are fully transparent stay
-/// distinct: whether they count as one colour is the caller's decision.
-///
-/// Works by sorting a copy of the packed pixels (4 bytes a pixel of extra
-/// memory), on all threads for large images.
-///
-/// ```
-/// use vqforge::load::{colour_histogram, RgbaImage};
-///
-/// let red = [255, 0, 0, 255];
-/// let blue = [0, 0, 255, 255];
-/// let image = RgbaImage { width: 3, height: 1, pixels: vec![red, blue, red] };
-/// assert_eq!(colour_histogram(&image), [(blue, 1), (red, 2)]);
-/// ```
-pub fn colour_histogram(image: &RgbaImage) -> Vec<([u8; 4], u64)> {
-    let mut packed: Vec<u32> = image.pixels.iter().map(|&p| pack(p)).collect();
-    if packed.len() >= PARALLEL_SORT_PIXELS {
-        packed.par_sort_unstable();
-    } else {
-        packed.sort_unstable();
-    }
-    let mut out: Vec<([u8; 4], u64)> = Vec::new();
-    for value in packed {
-        match out.last_mut() {
-            Some((last, count)) if pack(*last) == value => *count += 1,
-            _ => out.push((value.to_be_bytes(), 1)),
-        }
-    }
-    out
 }
 
 #[cfg(test)]

@@ -2,7 +2,6 @@
 //! or the `image` crate's encoders, or by hand from the PNG specification
 //! (second edition, W3C 2003); no image files are stored.
 
-use std::collections::BTreeMap;
 use std::io::Cursor;
 
 use ::image::{DynamicImage, ImageBuffer, ImageFormat};
@@ -414,42 +413,4 @@ fn oversized_header_is_refused_before_decoding() {
     assert!(matches!(at.kind(), ErrorKind::Format(_)), "{at}");
     let over = read_image(&small, "s.png", &ImageLimits { max_pixels: 99 }).unwrap_err();
     assert!(matches!(over.kind(), ErrorKind::Limit(_)), "{over}");
-}
-
-#[test]
-fn histogram_counts_distinct_colours_in_packed_order() {
-    let a = [0, 0, 0, 255];
-    let b = [0, 0, 0, 0];
-    let c = [1, 0, 0, 0];
-    let image = RgbaImage {
-        width: 5,
-        height: 1,
-        pixels: vec![c, a, b, a, c],
-    };
-    assert_eq!(colour_histogram(&image), [(b, 1), (a, 2), (c, 2)]);
-}
-
-#[test]
-fn histogram_matches_a_map_on_a_large_image() {
-    // Large enough for the parallel sort.
-    let mut rng = SeededRng::new(7);
-    let colours: Vec<[u8; 4]> = (0..37)
-        .map(|_| rng.next_u64().to_le_bytes()[..4].try_into().unwrap())
-        .collect();
-    let pixels: Vec<[u8; 4]> = (0..300 * 300)
-        .map(|_| colours[rng.below(37) as usize])
-        .collect();
-    let image = RgbaImage {
-        width: 300,
-        height: 300,
-        pixels,
-    };
-    let mut oracle: BTreeMap<[u8; 4], u64> = BTreeMap::new();
-    for &p in &image.pixels {
-        *oracle.entry(p).or_default() += 1;
-    }
-    let got = colour_histogram(&image);
-    // Big-endian packing orders by r, g, b, a: the array order of BTreeMap.
-    assert_eq!(got, oracle.into_iter().collect::<Vec<_>>());
-    assert_eq!(got.iter().map(|(_, n)| n).sum::<u64>(), 90_000);
 }

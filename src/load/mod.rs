@@ -1,6 +1,7 @@
 //! Loading: turns input files into vectors. It owns images: decoding PNG,
 //! JPEG, BMP, TIFF and WebP bytes into 8-bit RGBA ([`read_image`]) within
-//! [`ImageLimits`], and counting distinct colours ([`colour_histogram`]).
+//! [`ImageLimits`], and counting distinct colours ([`colour_histogram`],
+//! [`ColourIndex`]).
 //! And it owns CSV records: reading a table of numbers ([`read_table`]),
 //! choosing columns, the time column, missing values, scaling
 //! ([`fit_scales`]), joining rows into framing windows ([`to_vectors`]) and
@@ -39,6 +40,7 @@
 //! ```
 
 mod cells;
+mod colours;
 mod frame;
 mod image;
 mod options;
@@ -47,7 +49,8 @@ mod stream;
 mod table;
 mod time;
 
-pub use self::image::{colour_histogram, read_image, ImageLimits, RgbaImage};
+pub use self::image::{read_image, ImageLimits, RgbaImage};
+pub use colours::{colour_histogram, ColourIndex};
 pub use frame::{check_columns, frames_of, to_vectors};
 pub use options::{CsvOptions, Missing, TimeChoice};
 pub use scale::{fit_layout, fit_scales, FittedLayout, ScaleFit};

@@ -1,0 +1,198 @@
+//! Tests of colour counting. The bitmap path is checked against the sort
+//! path (the slow, obviously-right oracle) and both against a `BTreeMap`
+//! count, on the two photos stored in tests/data/images (byte copies of
+//! scikit-image's `astronaut.png` and `chelsea.png`, see
+//! tests/fixtures/README.md) and on seeded random and hand-made pixels.
+
+use std::collections::BTreeMap;
+use std::path::Path;
+
+use super::*;
+use crate::load::{read_image, ImageLimits};
+use crate::rng::SeededRng;
+
+fn photo(name: &str) -> RgbaImage {
+    let path = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("tests/data/images")
+        .join(format!("{name}.png"));
+    let bytes = std::fs::read(&path).unwrap();
+    read_image(&bytes, name, &ImageLimits::default()).unwrap()
+}
+
+fn image(width: u32, pixels: Vec<[u8; 4]>) -> RgbaImage {
+    RgbaImage {
+        width,
+        height: pixels.len() as u32 / width,
+        pixels,
+    }
+}
+
+/// Counts with an ordered map: big-endian packing orders by r, g, b, a,
+/// which is the array order `BTreeMap` sorts `[u8; 4]` keys in.
+fn map_count(pixels: &[[u8; 4]]) -> Vec<([u8; 4], u64)> {
+    let mut oracle: BTreeMap<[u8; 4], u64> = BTreeMap::new();
+    for &p in pixels {
+        *oracle.entry(p).or_default() += 1;
+    }
+    oracle.into_iter().collect()
+}
+
+/// The bitmap path on `pixels` whatever their number (all opaque).
+fn bitmap_histogram(pixels: &[[u8; 4]]) -> Vec<([u8; 4], u64)> {
+    RgbSet::of_opaque(pixels)
+        .unwrap()
+        .histogram(pixels, Counts::Wanted)
+}
+
+fn with_threads<T: Send>(threads: usize, f: impl FnOnce() -> T + Send) -> T {
+    rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()
+        .unwrap()
+        .install(f)
+}
+
+/// Every pixel's rank is its colour's place in the list, and
+/// `per_pixel` hands each pixel its colour's value.
+fn check_ranks(index: &ColourIndex) {
+    let colours = index.colours();
+    let place = |p: [u8; 4]| {
+        colours
+            .binary_search_by_key(&pack(p), |(c, _)| pack(*c))
+            .ok()
+    };
+    let values: Vec<u32> = (0..colours.len() as u32).map(|r| r * 3 + 1).collect();
+    let spread = index.per_pixel(&values).unwrap();
+    for (&p, &v) in index.image().pixels.iter().zip(&spread) {
+        let rank = place(p).unwrap();
+        assert_eq!(index.rank_of(p), Some(rank), "{p:?}");
+        assert_eq!(v, values[rank]);
+    }
+}
+
+#[test]
+fn histogram_counts_distinct_colours_in_packed_order() {
+    let a = [0, 0, 0, 255];
+    let b = [0, 0, 0, 0];
+    let c = [1, 0, 0, 0];
+    let image = image(5, vec![c, a, b, a, c]);
+    assert_eq!(colour_histogram(&image), [(b, 1), (a, 2), (c, 2)]);
+}
+
+#[test]
+fn histogram_matches_a_map_on_a_large_image() {
+    // Random alpha: large enough for the parallel sort.
+    let mut rng = SeededRng::new(7);
+    let colours: Vec<[u8; 4]> = (0..37)
+        .map(|_| rng.next_u64().to_le_bytes()[..4].try_into().unwrap())
+        .collect();
+    let pixels: Vec<[u8; 4]> = (0..300 * 300)
+        .map(|_| colours[rng.below(37) as usize])
+        .collect();
+    let image = image(300, pixels);
+    let got = colour_histogram(&image);
+    assert_eq!(got, map_count(&image.pixels));
+    assert_eq!(got.iter().map(|(_, n)| n).sum::<u64>(), 90_000);
+}
+
+#[test]
+fn bitmap_equals_sorting_on_the_photos() {
+    for name in ["astronaut", "chelsea"] {
+        let image = photo(name);
+        assert!(image.pixels.len() >= BITMAP_MIN_PIXELS, "{name}");
+        let (colours, _) =
+            opaque_histogram(&image.pixels, Counts::Wanted).expect("an opaque photo");
+        assert_eq!(colours, sorted_histogram(&image.pixels), "{name}");
+        assert_eq!(colours, map_count(&image.pixels), "{name}");
+        assert_eq!(colour_histogram(&image), colours, "{name}");
+        let index = ColourIndex::new(&image);
+        assert!(matches!(index.ranks, Ranks::Bitmap(_)));
+        check_ranks(&index);
+    }
+}
+
+#[test]
+fn partial_alpha_falls_back_to_sorting() {
+    let mut image = photo("chelsea");
+    let last = image.pixels.len() - 1;
+    image.pixels[last][3] = 254;
+    image.pixels[0][3] = 0;
+    assert!(opaque_histogram(&image.pixels, Counts::Wanted).is_none());
+    let want = map_count(&image.pixels);
+    assert_eq!(colour_histogram(&image), want);
+    let index = ColourIndex::new(&image);
+    assert!(matches!(index.ranks, Ranks::Hashed(_)));
+    assert_eq!(index.colours(), want);
+    check_ranks(&index);
+    // An opaque colour the image has only with alpha 254 is absent.
+    let mut opaque = image.pixels[last];
+    opaque[3] = 255;
+    if !image.pixels.contains(&opaque) {
+        assert_eq!(index.rank_of(opaque), None);
+    }
+}
+
+#[test]
+fn tiny_images_sort_and_the_bitmap_agrees() {
+    // Colours at the ends of the RGB cube and on both sides of 64-bit word
+    // boundaries of the bitmap.
+    let edges: Vec<[u8; 4]> = [
+        0x000000u32,
+        0x00003F,
+        0x000040,
+        0x00FFFF,
+        0x010000,
+        0xFFFFBF,
+    ]
+    .iter()
+    .chain(&[0xFFFFC0, 0xFFFFFF, 0x7FFFFF, 0x800000])
+    .map(|&rgb| (rgb << 8 | 0xFF).to_be_bytes())
+    .collect();
+    let mut cases: Vec<Vec<[u8; 4]>> = vec![vec![[1, 2, 3, 255]], vec![[255; 4]; 3]];
+    cases.push(edges.clone());
+    let mut twice = edges.clone();
+    twice.extend(edges.iter().rev());
+    cases.push(twice);
+    for pixels in cases {
+        let want = map_count(&pixels);
+        let image = image(pixels.len() as u32, pixels);
+        assert_eq!(colour_histogram(&image), want);
+        assert_eq!(bitmap_histogram(&image.pixels), want);
+        let index = ColourIndex::new(&image);
+        assert_eq!(index.colours(), want);
+        check_ranks(&index);
+    }
+}
+
+#[test]
+fn many_colours_give_the_same_list_on_any_number_of_threads() {
+    // More pixels than one counting part, nearly all of them distinct.
+    let mut rng = SeededRng::new(11);
+    let pixels: Vec<[u8; 4]> = (0..600 * 600)
+        .map(|_| {
+            let [r, g, b, ..] = rng.next_u64().to_le_bytes();
+            [r, g, b, 255]
+        })
+        .collect();
+    let image = image(600, pixels);
+    let want = sorted_histogram(&image.pixels);
+    assert_eq!(want, map_count(&image.pixels));
+    for threads in [1, 2, 3, 4] {
+        let got = with_threads(threads, || colour_histogram(&image));
+        assert_eq!(got, want, "{threads} threads");
+    }
+    check_ranks(&ColourIndex::new(&image));
+}
+
+#[test]
+fn per_pixel_wants_one_value_per_colour() {
+    let image = photo("chelsea");
+    let index = ColourIndex::new(&image);
+    let n = index.colours().len();
+    let e = index.per_pixel(&vec![0; n + 1]).unwrap_err();
+    assert!(matches!(e.kind(), ErrorKind::Shape(_)), "{e}");
+    assert_eq!(
+        e.to_string(),
+        format!("mapping pixels: {} values for {n} distinct colours", n + 1)
+    );
+}
