@@ -6,8 +6,8 @@
 //! 1 461 days; repeated 40 times in memory so one parse takes a measurable
 //! time, 58 440 rows) and scikit-image's astronaut photo (512 × 512). What
 //! was read (rows, columns; pixels, distinct colours) is printed before
-//! timing. One thread (the loaders are sequential, the colour count sorts
-//! in parallel only above a million pixels).
+//! timing. The loaders are sequential; the colour count runs on rayon's
+//! pool (set `RAYON_NUM_THREADS` to choose the threads).
 
 use std::hint::black_box;
 use std::time::Duration;

@@ -2,9 +2,9 @@
 //! colour once, measuring from the distinct colours, sorting pairs,
 //! selecting the percentile) are checked against slow, obviously-right
 //! oracles: [`Palette::index_of`] for every pixel, and the error figures
-//! computed pixel by pixel with a full sort for the percentile. The photo
-//! is tests/data/images/chelsea.png, a byte copy of scikit-image's
-//! `chelsea.png` (see tests/fixtures/README.md).
+//! computed pixel by pixel with a full sort for the percentile. The photos
+//! are tests/data/images/astronaut.png and chelsea.png, byte copies of
+//! scikit-image's (see tests/fixtures/README.md).
 
 use std::path::Path;
 
@@ -13,10 +13,16 @@ use crate::kmeans::{Seeding, StopReason};
 use crate::load::{read_image, ImageLimits};
 use crate::rng::SeededRng;
 
-fn chelsea() -> RgbaImage {
-    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/images/chelsea.png");
+fn photo(name: &str) -> RgbaImage {
+    let path = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("tests/data/images")
+        .join(format!("{name}.png"));
     let bytes = std::fs::read(&path).unwrap();
-    read_image(&bytes, "chelsea.png", &ImageLimits::default()).unwrap()
+    read_image(&bytes, name, &ImageLimits::default()).unwrap()
+}
+
+fn chelsea() -> RgbaImage {
+    photo("chelsea")
 }
 
 /// Chelsea with a fully transparent band (its colours kept, so several
@@ -66,15 +72,16 @@ fn config(space: ColourSpace, alpha: AlphaMode) -> PaletteConfig {
     c
 }
 
-/// The cases: chelsea opaque (the bitmap path) and with alpha (the hashed
-/// path), composited and with alpha kept, in two working spaces.
+/// The cases: astronaut, opaque and large enough for the bitmap path of
+/// colour counting, and chelsea with alpha (the hashed path), composited
+/// and with alpha kept, in two working spaces.
 fn cases() -> Vec<(RgbaImage, Palette)> {
     let composite = AlphaMode::Composite {
         background: [255, 255, 255],
     };
     let mut out = Vec::new();
     for (image, alpha) in [
-        (chelsea(), composite),
+        (photo("astronaut"), composite),
         (chelsea_with_alpha(), composite),
         (chelsea_with_alpha(), AlphaMode::Keep),
     ] {

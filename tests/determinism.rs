@@ -92,7 +92,8 @@ fn records_train_and_encode_are_byte_identical() {
 #[test]
 fn image_palette_train_and_encode_are_byte_identical() {
     // A 160 × 120 crop of the committed photo: 19 200 pixels, thousands of
-    // distinct colours.
+    // distinct colours. The whole astronaut photo (262 144 pixels) is large
+    // enough for colour counting through the RGB bitmap.
     let setup = |d: &Path| {
         let photo = image::open(data("images/chelsea.png")).unwrap();
         photo
@@ -100,6 +101,7 @@ fn image_palette_train_and_encode_are_byte_identical() {
             .to_rgb8()
             .save(d.join("cat.png"))
             .unwrap();
+        std::fs::copy(data("images/astronaut.png"), d.join("astronaut.png")).unwrap();
     };
     let palette: &[&str] = &["palette", "cat.png", "-k", "16", "-o", "p.png"];
     let palette_dither: &[&str] = &[
@@ -116,9 +118,10 @@ fn image_palette_train_and_encode_are_byte_identical() {
     ];
     let train: &[&str] = &["train", "cat.png", "-k", "16", "-o", "c.vqb"];
     let encode: &[&str] = &["encode", "cat.png", "-b", "c.vqb", "-o", "c.vqs"];
+    let encode_large: &[&str] = &["encode", "astronaut.png", "-b", "c.vqb", "-o", "a.vqs"];
     same_bytes_every_run(
         setup,
-        &[palette, palette_dither, train, encode],
-        &["p.png", "d.png", "c.vqb", "c.vqs"],
+        &[palette, palette_dither, train, encode, encode_large],
+        &["p.png", "d.png", "c.vqb", "c.vqs", "a.vqs"],
     );
 }

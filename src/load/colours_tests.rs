@@ -95,10 +95,30 @@ fn histogram_matches_a_map_on_a_large_image() {
     assert_eq!(got.iter().map(|(_, n)| n).sum::<u64>(), 90_000);
 }
 
+/// `image` above itself: twice the pixels, the same colours.
+fn twice(image: RgbaImage) -> RgbaImage {
+    let mut pixels = image.pixels.clone();
+    pixels.extend_from_slice(&image.pixels);
+    RgbaImage {
+        width: image.width,
+        height: image.height * 2,
+        pixels,
+    }
+}
+
 #[test]
 fn bitmap_equals_sorting_on_the_photos() {
-    for name in ["astronaut", "chelsea"] {
-        let image = photo(name);
+    let chelsea = photo("chelsea");
+    // Below the size that picks it, the bitmap gives the same list.
+    assert!(chelsea.pixels.len() < BITMAP_MIN_PIXELS);
+    assert_eq!(
+        bitmap_histogram(&chelsea.pixels),
+        sorted_histogram(&chelsea.pixels)
+    );
+    for (name, image) in [
+        ("astronaut", photo("astronaut")),
+        ("chelsea twice", twice(chelsea)),
+    ] {
         assert!(image.pixels.len() >= BITMAP_MIN_PIXELS, "{name}");
         let (colours, _) =
             opaque_histogram(&image.pixels, Counts::Wanted).expect("an opaque photo");
