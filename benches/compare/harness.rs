@@ -97,7 +97,7 @@ fn main() {
                 &args[4],
                 &indices,
                 seconds,
-                "distinct colours, then tree",
+                "distinct colours (bitmap), then exact-difference kernel",
                 threads,
             );
         }
