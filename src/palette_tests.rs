@@ -6,20 +6,10 @@
 //! are tests/data/images/astronaut.png and chelsea.png, byte copies of
 //! scikit-image's (see tests/fixtures/README.md).
 
-use std::path::Path;
-
 use super::*;
 use crate::kmeans::{Seeding, StopReason};
-use crate::load::{read_image, ImageLimits};
+use crate::load::test_photo as photo;
 use crate::rng::SeededRng;
-
-fn photo(name: &str) -> RgbaImage {
-    let path = Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("tests/data/images")
-        .join(format!("{name}.png"));
-    let bytes = std::fs::read(&path).unwrap();
-    read_image(&bytes, name, &ImageLimits::default()).unwrap()
-}
 
 fn chelsea() -> RgbaImage {
     photo("chelsea")

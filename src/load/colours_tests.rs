@@ -5,19 +5,10 @@
 //! tests/fixtures/README.md) and on seeded random and hand-made pixels.
 
 use std::collections::BTreeMap;
-use std::path::Path;
 
 use super::*;
-use crate::load::{read_image, ImageLimits};
+use crate::load::test_photo as photo;
 use crate::rng::SeededRng;
-
-fn photo(name: &str) -> RgbaImage {
-    let path = Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("tests/data/images")
-        .join(format!("{name}.png"));
-    let bytes = std::fs::read(&path).unwrap();
-    read_image(&bytes, name, &ImageLimits::default()).unwrap()
-}
 
 fn image(width: u32, pixels: Vec<[u8; 4]>) -> RgbaImage {
     RgbaImage {

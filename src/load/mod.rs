@@ -63,3 +63,15 @@ pub use time::{
 
 /// The stage named in errors raised while reading records.
 const STAGE: &str = "reading records";
+
+/// A photo stored in tests/data/images (byte copies of scikit-image's, see
+/// tests/fixtures/README.md), read as `read_image` reads any PNG; for unit
+/// tests.
+#[cfg(test)]
+pub(crate) fn test_photo(name: &str) -> RgbaImage {
+    let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("tests/data/images")
+        .join(format!("{name}.png"));
+    let bytes = std::fs::read(&path).unwrap();
+    read_image(&bytes, name, &ImageLimits::default()).unwrap()
+}
