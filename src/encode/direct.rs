@@ -21,8 +21,6 @@ use super::{assert_rows, nearest_linear, nearest_two_linear, Nearest, NearestTwo
 pub const MAX_DIMENSION: usize = 3;
 /// Codewords per panel: the kernel's vector width.
 const LANES: usize = 8;
-/// Queries answered together, sharing each panel load.
-const TILE_ROWS: usize = 4;
 
 /// The codewords laid out in panels, built once per encoder.
 #[derive(Debug, Clone)]
@@ -48,24 +46,13 @@ impl Direct {
     pub(super) fn new(codewords: &[f32], dimension: usize) -> Direct {
         assert!((1..=MAX_DIMENSION).contains(&dimension));
         let k = codewords.len() / dimension;
-        let panels_n = k.div_ceil(LANES);
-        let mut panels = vec![f32::INFINITY; panels_n * MAX_DIMENSION * LANES];
+        let mut panels = vec![f32::INFINITY; k.div_ceil(LANES) * MAX_DIMENSION * LANES];
         for (i, c) in codewords.chunks_exact(dimension).enumerate() {
             let (p, l) = (i / LANES, i % LANES);
-            for (j, &v) in c.iter().enumerate() {
-                panels[(p * MAX_DIMENSION + j) * LANES + l] = v;
-            }
-        }
-        // Unused components are 0 in codewords and queries alike, so
-        // they add exactly nothing.
-        for p in 0..panels_n {
-            for j in dimension..MAX_DIMENSION {
-                for l in 0..LANES {
-                    let i = p * LANES + l;
-                    if i < k {
-                        panels[(p * MAX_DIMENSION + j) * LANES + l] = 0.0;
-                    }
-                }
+            // Unused components are 0 in codewords and queries alike, so
+            // they add exactly nothing.
+            for j in 0..MAX_DIMENSION {
+                panels[(p * MAX_DIMENSION + j) * LANES + l] = c.get(j).copied().unwrap_or(0.0);
             }
         }
         Direct { dimension, panels }
@@ -78,7 +65,7 @@ impl Direct {
     /// how such ties fall.
     pub(super) fn nearest(&self, codewords: &[f32], rows: &[f32], out: &mut [Nearest]) {
         let d = self.dimension;
-        self.each_tile::<false, _>(rows, out, |lanes, x, slot| {
+        self.each_row::<false, _>(rows, out, |lanes, x, slot| {
             let found = merge::<false>(lanes).nearest;
             *slot = if found.distance_sq.is_finite() {
                 found
@@ -92,7 +79,7 @@ impl Direct {
     /// (`codewords` as for [`Direct::nearest`]).
     pub(super) fn nearest_two(&self, codewords: &[f32], rows: &[f32], out: &mut [NearestTwo]) {
         let d = self.dimension;
-        self.each_tile::<true, _>(rows, out, |lanes, x, slot| {
+        self.each_row::<true, _>(rows, out, |lanes, x, slot| {
             let found = merge::<true>(lanes);
             *slot = if found.nearest.distance_sq.is_finite() {
                 found
@@ -102,7 +89,8 @@ impl Direct {
         });
     }
 
-    fn each_tile<const TWO: bool, T>(
+    /// Runs `each(lanes, row, out slot)` for every row after scanning it.
+    fn each_row<const TWO: bool, T>(
         &self,
         rows: &[f32],
         out: &mut [T],
@@ -110,85 +98,66 @@ impl Direct {
     ) {
         let d = self.dimension;
         assert_rows(rows, out.len(), d);
-        for (rows, out) in rows.chunks(TILE_ROWS * d).zip(out.chunks_mut(TILE_ROWS)) {
-            // Queries spread to three components by rows: tile[j][r].
-            let mut tile = [[0.0f32; TILE_ROWS]; MAX_DIMENSION];
-            for (r, x) in rows.chunks_exact(d).enumerate() {
-                for (j, &v) in x.iter().enumerate() {
-                    tile[j][r] = v;
-                }
-            }
-            let lanes = scan(&tile, &self.panels, TWO);
-            for ((l, x), slot) in lanes.iter().zip(rows.chunks_exact(d)).zip(out.iter_mut()) {
-                each(l, x, slot);
-            }
+        for (x, slot) in rows.chunks_exact(d).zip(out.iter_mut()) {
+            let mut query = [0.0f32; MAX_DIMENSION];
+            query[..d].copy_from_slice(x);
+            each(&scan(&query, &self.panels, TWO), x, slot);
         }
     }
 }
 
-/// Every panel against one tile of queries. Compiled once for the baseline
+/// Every panel against one query. Compiled once for the baseline
 /// instruction set and once for AVX2, chosen at run time (`multiversion`);
 /// the arithmetic is the same in both.
 #[multiversion(targets("x86_64+avx2+avx"))]
-fn scan(tile: &[[f32; TILE_ROWS]; MAX_DIMENSION], panels: &[f32], two: bool) -> [Lanes; TILE_ROWS] {
+fn scan(query: &[f32; MAX_DIMENSION], panels: &[f32], two: bool) -> Lanes {
     if two {
-        scan_with::<true>(tile, panels)
+        scan_with::<true>(query, panels)
     } else {
-        scan_with::<false>(tile, panels)
+        scan_with::<false>(query, panels)
     }
 }
 
 // No closures inside: a closure is compiled apart, without the target
 // features of the version that calls it.
 #[inline(always)]
-fn scan_with<const TWO: bool>(
-    tile: &[[f32; TILE_ROWS]; MAX_DIMENSION],
-    panels: &[f32],
-) -> [Lanes; TILE_ROWS] {
+fn scan_with<const TWO: bool>(query: &[f32; MAX_DIMENSION], panels: &[f32]) -> Lanes {
+    let [x0, x1, x2] = *query;
     let mut first = [0u32; LANES];
     for (l, f) in first.iter_mut().enumerate() {
         *f = l as u32;
     }
-    let mut out = [Lanes {
-        least: [f32::INFINITY; LANES],
-        index: first,
-        second: [f32::INFINITY; LANES],
-    }; TILE_ROWS];
-    for (r, lanes) in out.iter_mut().enumerate() {
-        let (x0, x1, x2) = (tile[0][r], tile[1][r], tile[2][r]);
-        let mut least = [f32::INFINITY; LANES];
-        let mut index = first;
-        let mut second = [f32::INFINITY; LANES];
-        let mut at = first;
-        for panel in panels.chunks_exact(MAX_DIMENSION * LANES) {
-            let (c0, rest) = panel.split_at(LANES);
-            let (c1, c2) = rest.split_at(LANES);
-            for l in 0..LANES {
-                let (d0, d1, d2) = (x0 - c0[l], x1 - c1[l], x2 - c2[l]);
-                // distance_sq's order: ((0 + d0²) + d1²) + d2², and
-                // 0 + d0² is d0² exactly.
-                let v = d0 * d0 + d1 * d1 + d2 * d2;
-                let nearer = v < least[l];
-                if TWO {
-                    let beaten = if nearer { least[l] } else { v };
-                    second[l] = if beaten < second[l] {
-                        beaten
-                    } else {
-                        second[l]
-                    };
-                }
-                index[l] = if nearer { at[l] } else { index[l] };
-                least[l] = if nearer { v } else { least[l] };
-                at[l] += LANES as u32;
+    let mut least = [f32::INFINITY; LANES];
+    let mut index = first;
+    let mut second = [f32::INFINITY; LANES];
+    let mut at = first;
+    for panel in panels.chunks_exact(MAX_DIMENSION * LANES) {
+        let (c0, rest) = panel.split_at(LANES);
+        let (c1, c2) = rest.split_at(LANES);
+        for l in 0..LANES {
+            let (d0, d1, d2) = (x0 - c0[l], x1 - c1[l], x2 - c2[l]);
+            // distance_sq's order: ((0 + d0²) + d1²) + d2², and
+            // 0 + d0² is d0² exactly.
+            let v = d0 * d0 + d1 * d1 + d2 * d2;
+            let nearer = v < least[l];
+            if TWO {
+                let beaten = if nearer { least[l] } else { v };
+                second[l] = if beaten < second[l] {
+                    beaten
+                } else {
+                    second[l]
+                };
             }
+            index[l] = if nearer { at[l] } else { index[l] };
+            least[l] = if nearer { v } else { least[l] };
+            at[l] += LANES as u32;
         }
-        *lanes = Lanes {
-            least,
-            index,
-            second,
-        };
     }
-    out
+    Lanes {
+        least,
+        index,
+        second,
+    }
 }
 
 /// One query's answer from its lanes: the least distance, the lowest index
