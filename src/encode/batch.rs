@@ -49,6 +49,8 @@
 //! codewords of least s: one of them is not the nearest, so the runner-up's
 //! E is at most the larger of their E, itself at most the second least s
 //! plus b (shifted by ‖x'‖²); the window is then 2b above the second least s.
+//! When even the second least s lies above the nearest's window, the
+//! codeword of least s is the only one in it and is measured alone.
 //! Queries whose M² could overflow `f32` (or that are not finite) are
 //! measured exactly against every codeword.
 
@@ -56,8 +58,10 @@ use multiversion::multiversion;
 
 use super::{assert_rows, distance_sq, nearest_linear, nearest_two_linear, Nearest, NearestTwo};
 
-/// Codewords per panel: the kernel's vector width.
-const LANES: usize = 8;
+/// Codewords per panel: two 8-wide vector registers per query, so a tile
+/// keeps eight independent sums in flight (enough to hide the latency of
+/// the additions; one register per query left the kernel waiting on it).
+const LANES: usize = 16;
 /// Queries scored together: the rows of the micro-kernel's tile.
 const TILE_ROWS: usize = 4;
 
@@ -89,8 +93,8 @@ struct Tile {
     lengths: [f64; TILE_ROWS],
     /// Scores s, row after row, each padded to whole panels.
     scores: Vec<f32>,
-    /// Per row, the least and second least score.
-    least: [(f32, f32); TILE_ROWS],
+    /// Per row, what the kernel found.
+    found: [Least; TILE_ROWS],
 }
 
 impl Blocked {
@@ -155,7 +159,7 @@ impl Blocked {
             moved: vec![0.0; TILE_ROWS * self.dimension],
             lengths: [0.0; TILE_ROWS],
             scores: vec![0.0; TILE_ROWS * self.norms.len()],
-            least: [(f32::INFINITY, f32::INFINITY); TILE_ROWS],
+            found: [Least::NONE; TILE_ROWS],
         }
     }
 
@@ -163,8 +167,17 @@ impl Blocked {
     pub(super) fn nearest(&self, codewords: &[f32], rows: &[f32], out: &mut [Nearest]) {
         let d = self.dimension;
         let mut found = Vec::new();
-        self.each_row::<false, _>(rows, out, |scores, (least, _), x, length, slot| {
-            *slot = match self.window(least, length) {
+        self.each_row(rows, out, |scores, least, x, length, slot| {
+            *slot = match self.window(least.first, length) {
+                // Only the codeword of least score is in the window (the
+                // usual case): no need to look through the scores.
+                Some(top) if least.second > top => {
+                    let i = first_at(scores, least.first);
+                    Nearest {
+                        index: i as u32,
+                        distance_sq: distance_sq(&codewords[i * d..][..d], x),
+                    }
+                }
                 Some(top) => {
                     let mut best = Nearest {
                         index: 0,
@@ -191,10 +204,10 @@ impl Blocked {
     pub(super) fn nearest_two(&self, codewords: &[f32], rows: &[f32], out: &mut [NearestTwo]) {
         let d = self.dimension;
         let mut found = Vec::new();
-        self.each_row::<true, _>(rows, out, |scores, (least, second), x, length, slot| {
-            *slot = match self.window(least, length) {
+        self.each_row(rows, out, |scores, least, x, length, slot| {
+            *slot = match self.window(least.first, length) {
                 Some(_) => {
-                    let top = self.window(second, length).unwrap_or(f32::INFINITY);
+                    let top = self.window(least.second, length).unwrap_or(f32::INFINITY);
                     let mut two = NearestTwo::NONE;
                     at_most(scores, top, &mut found);
                     for &i in &found {
@@ -226,90 +239,88 @@ impl Blocked {
         Some(round_up(f64::from(score) + 2.0 * b))
     }
 
-    /// Runs `each(scores, (least, second least), row, ‖x'‖, out slot)` for
-    /// every row, after the kernel has scored the row's tile. The second
-    /// least score is only tracked when `TWO` (else it is +∞).
-    fn each_row<const TWO: bool, T>(
+    /// Runs `each(scores, least scores, row, ‖x'‖, out slot)` for every
+    /// row, after the kernel has scored the row's tile.
+    fn each_row<T>(
         &self,
         rows: &[f32],
         out: &mut [T],
-        mut each: impl FnMut(&[f32], (f32, f32), &[f32], f64, &mut T),
+        mut each: impl FnMut(&[f32], Least, &[f32], f64, &mut T),
     ) {
         let d = self.dimension;
         assert_rows(rows, out.len(), d);
         let padded = self.norms.len();
         let mut tile = self.tile();
         for (rows, out) in rows.chunks(TILE_ROWS * d).zip(out.chunks_mut(TILE_ROWS)) {
-            self.score_tile::<TWO>(rows, &mut tile);
+            self.score_tile(rows, &mut tile);
             for (r, (x, slot)) in rows.chunks_exact(d).zip(out.iter_mut()).enumerate() {
                 let scores = &tile.scores[r * padded..][..self.size];
-                each(scores, tile.least[r], x, tile.lengths[r], slot);
+                each(scores, tile.found[r], x, tile.lengths[r], slot);
             }
         }
     }
 
-    /// Scores up to [`TILE_ROWS`] rows against every codeword, with each
-    /// row's least (and, if `TWO`, second least) score.
-    fn score_tile<const TWO: bool>(&self, rows: &[f32], t: &mut Tile) {
+    /// Scores up to [`TILE_ROWS`] rows against every codeword, and finds
+    /// each row's least scores.
+    fn score_tile(&self, rows: &[f32], t: &mut Tile) {
         let d = self.dimension;
         let n = rows.len() / d;
         // Rows past the end stay 0: their scores are computed and ignored.
         t.moved.fill(0.0);
         for (r, x) in rows.chunks_exact(d).enumerate() {
-            let mut length = 0.0f64;
             for (j, (&v, &m)) in x.iter().zip(&self.centre).enumerate() {
-                let moved = v - m;
-                t.moved[j * TILE_ROWS + r] = moved;
-                length += f64::from(moved) * f64::from(moved);
+                t.moved[j * TILE_ROWS + r] = v - m;
             }
-            t.lengths[r] = length.sqrt();
         }
-        let (lo, hi) = score_panels(&t.moved, &self.panels, &self.norms, TWO, &mut t.scores);
+        // ‖x'‖ of all rows at once, component by component (the rows'
+        // sums are independent, so they share vector registers).
+        let mut squares = [0.0f64; TILE_ROWS];
+        for x in t.moved.chunks_exact(TILE_ROWS) {
+            for (s, &v) in squares.iter_mut().zip(x) {
+                *s += f64::from(v) * f64::from(v);
+            }
+        }
+        for (length, s) in t.lengths.iter_mut().zip(squares) {
+            *length = s.sqrt();
+        }
+        score_panels(&t.moved, &self.panels, &self.norms, &mut t.scores);
+        let padded = self.norms.len();
         for r in 0..n {
-            t.least[r] = least_two(&lo[r], &hi[r]);
+            t.found[r] = least_two(&t.scores[r * padded..][..padded]);
         }
     }
 }
 
-/// Per-lane least and second least scores of a tile's rows.
-type LaneLeast = [[f32; LANES]; TILE_ROWS];
+/// The least and second least score of a row (equal when two codewords
+/// share the least).
+#[derive(Debug, Clone, Copy)]
+struct Least {
+    first: f32,
+    second: f32,
+}
+
+impl Least {
+    const NONE: Least = Least {
+        first: f32::INFINITY,
+        second: f32::INFINITY,
+    };
+}
 
 /// Scores one tile of moved queries (`moved`, component by component)
 /// against every panel into `scores` (row after row, each `norms.len()`
-/// long), and returns each row's per-lane least scores and, if `two`,
-/// second least (else +∞).
+/// long).
 ///
 /// Compiled once for the baseline instruction set and once for AVX2, and
 /// the best the processor offers is chosen at run time (the `multiversion`
 /// crate), so the vectorised loops use 8-wide registers where they exist
 /// without any build flag; the arithmetic is the same in both, and the
-/// recheck makes the answers exact either way.
+/// recheck makes the answers exact either way. The least scores are found
+/// afterwards ([`least_two`]): tracking them here would take registers the
+/// sums need.
 #[multiversion(targets("x86_64+avx2+avx"))]
-fn score_panels(
-    moved: &[f32],
-    panels: &[f32],
-    norms: &[f32],
-    two: bool,
-    scores: &mut [f32],
-) -> (LaneLeast, LaneLeast) {
-    if two {
-        score_panels_with::<true>(moved, panels, norms, scores)
-    } else {
-        score_panels_with::<false>(moved, panels, norms, scores)
-    }
-}
-
-#[inline(always)]
-fn score_panels_with<const TWO: bool>(
-    moved: &[f32],
-    panels: &[f32],
-    norms: &[f32],
-    scores: &mut [f32],
-) -> (LaneLeast, LaneLeast) {
+fn score_panels(moved: &[f32], panels: &[f32], norms: &[f32], scores: &mut [f32]) {
     let d = moved.len() / TILE_ROWS;
     let padded = norms.len();
-    let mut lo = [[f32::INFINITY; LANES]; TILE_ROWS];
-    let mut hi = [[f32::INFINITY; LANES]; TILE_ROWS];
     for (p, (panel, norms)) in panels
         .chunks_exact(d * LANES)
         .zip(norms.chunks_exact(LANES))
@@ -319,18 +330,8 @@ fn score_panels_with<const TWO: bool>(
         let acc = tile_scores(moved, panel, norms);
         for (r, a) in acc.iter().enumerate() {
             scores[r * padded + p * LANES..][..LANES].copy_from_slice(a);
-            // Plain comparisons rather than f32::min: scores of finite
-            // queries are never NaN, and this form is one instruction.
-            for ((l, h), &v) in lo[r].iter_mut().zip(hi[r].iter_mut()).zip(a) {
-                if TWO {
-                    let above = if v < *l { *l } else { v };
-                    *h = if above < *h { above } else { *h };
-                }
-                *l = if v < *l { v } else { *l };
-            }
         }
     }
-    (lo, hi)
 }
 
 /// Scores of one tile of queries against one panel of codewords: the
@@ -352,20 +353,50 @@ fn tile_scores(tile: &[f32], panel: &[f32], norms: &[f32; LANES]) -> [[f32; LANE
     acc
 }
 
-/// The least and second least of the values in `lo` and `hi` together,
-/// where lane l of `lo` and `hi` holds the least and second least of the
-/// scores seen in that lane: the two least overall are among them.
-fn least_two(lo: &[f32; LANES], hi: &[f32; LANES]) -> (f32, f32) {
+/// The least scores of one row ([`Least`]). Kept apart from the kernel
+/// and compiled like it: lane by lane minima over whole panels, then
+/// merged; the codeword is then found by [`first_at`].
+#[multiversion(targets("x86_64+avx2+avx"))]
+fn least_two(scores: &[f32]) -> Least {
+    let mut lo = [f32::INFINITY; LANES];
+    let mut hi = [f32::INFINITY; LANES];
+    for panel in scores.chunks_exact(LANES) {
+        // Plain comparisons rather than f32::min: scores of finite
+        // queries are never NaN, and this form is one instruction.
+        for ((l, h), &v) in lo.iter_mut().zip(hi.iter_mut()).zip(panel) {
+            let above = if v < *l { *l } else { v };
+            *h = if above < *h { above } else { *h };
+            *l = if v < *l { v } else { *l };
+        }
+    }
     // Selects rather than branches: which lane holds the least is random,
     // so branches on it would be mispredicted half the time.
     let (mut first, mut second) = (f32::INFINITY, f32::INFINITY);
-    for (&l, &h) in lo.iter().zip(hi) {
+    for (&l, &h) in lo.iter().zip(&hi) {
         let above = if l < first { first } else { l };
         second = if above < second { above } else { second };
         second = if h < second { h } else { second };
         first = if l < first { l } else { first };
     }
-    (first, second)
+    Least { first, second }
+}
+
+/// The first i with `scores[i] == value` (`scores.len()` if none), a
+/// chunk of [`LANES`] at a time (compiled like [`score_panels`]).
+#[multiversion(targets("x86_64+avx2+avx"))]
+fn first_at(scores: &[f32], value: f32) -> usize {
+    let mut chunks = scores.chunks_exact(LANES);
+    for (n, c) in chunks.by_ref().enumerate() {
+        if c.iter().fold(false, |any, &v| any | (v == value)) {
+            return n * LANES + c.iter().position(|&v| v == value).unwrap_or(0);
+        }
+    }
+    let base = scores.len() - chunks.remainder().len();
+    base + chunks
+        .remainder()
+        .iter()
+        .position(|&v| v == value)
+        .unwrap_or(chunks.remainder().len())
 }
 
 /// Collects into `found` (cleared first) every i with `scores[i] ≤ top`,

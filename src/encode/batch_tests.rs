@@ -172,7 +172,7 @@ fn recheck_changes_answers_on_cancelling_data() {
     let padded = blocked.norms.len();
     let mut wrong = 0;
     for rows in q.chunks(TILE_ROWS * d) {
-        blocked.score_tile::<false>(rows, &mut tile);
+        blocked.score_tile(rows, &mut tile);
         for (r, x) in rows.chunks_exact(d).enumerate() {
             let scores = &tile.scores[r * padded..][..k];
             let mut approx = 0;
