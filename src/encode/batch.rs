@@ -27,7 +27,9 @@
 //!   u' = u / (1 − u) times |x'ⱼ| + |c'ⱼ|, so the error e has ‖e‖ ≤ u'·M and
 //!   |‖x' − c'‖² − D| ≤ 2‖x' − c'‖·‖e‖ + ‖e‖² ≤ (2u' + u'²)·M².
 //! * Kernel: s = ‖c'‖² + Σⱼ x'ⱼ·(−2c'ⱼ), started from the stored norm and
-//!   accumulated in `f32` (−2c' is exact). The stored norm is a sum in `f64`
+//!   accumulated in `f32` (−2c' is exact), step by step as a product then a
+//!   sum, or as one fused multiply-add where the processor has it (one
+//!   rounding instead of two, so the bound below holds for both). The stored norm is a sum in `f64`
 //!   rounded once to `f32`: off by at most 2u·‖c'‖². The accumulation is an
 //!   inner product of d + 1 terms: off by at most γ_{d+1}·(1 + 2u)·(‖c'‖² +
 //!   2‖x'‖·‖c'‖) ≤ γ_{d+1}·(1 + 2u)·M². The true s + ‖x'‖² is ‖x' − c'‖²;
@@ -317,8 +319,24 @@ impl Least {
 /// recheck makes the answers exact either way. The least scores are found
 /// afterwards ([`least_two`]): tracking them here would take registers the
 /// sums need.
-#[multiversion(targets("x86_64+avx2+avx"))]
+#[multiversion(targets("x86_64+avx2+avx+fma", "x86_64+avx2+avx"))]
 fn score_panels(moved: &[f32], panels: &[f32], norms: &[f32], scores: &mut [f32]) {
+    // Fused multiply-adds only where the processor has them: elsewhere
+    // `mul_add` is a slow library call.
+    if multiversion::target::target_cfg_f!(target_feature = "fma") {
+        score_panels_with::<true>(moved, panels, norms, scores);
+    } else {
+        score_panels_with::<false>(moved, panels, norms, scores);
+    }
+}
+
+#[inline(always)]
+fn score_panels_with<const FUSED: bool>(
+    moved: &[f32],
+    panels: &[f32],
+    norms: &[f32],
+    scores: &mut [f32],
+) {
     let d = moved.len() / TILE_ROWS;
     let padded = norms.len();
     for (p, (panel, norms)) in panels
@@ -327,7 +345,7 @@ fn score_panels(moved: &[f32], panels: &[f32], norms: &[f32], scores: &mut [f32]
         .enumerate()
     {
         let norms: &[f32; LANES] = norms.try_into().expect("whole panels");
-        let acc = tile_scores(moved, panel, norms);
+        let acc = tile_scores::<FUSED>(moved, panel, norms);
         for (r, a) in acc.iter().enumerate() {
             scores[r * padded + p * LANES..][..LANES].copy_from_slice(a);
         }
@@ -336,17 +354,27 @@ fn score_panels(moved: &[f32], panels: &[f32], norms: &[f32], scores: &mut [f32]
 
 /// Scores of one tile of queries against one panel of codewords: the
 /// register-sized core of the kernel. Each lane sums its own terms in
-/// component order; the loops over rows and lanes have fixed lengths, so
+/// component order, each step a fused multiply-add (one rounding) if
+/// `FUSED`, else a product and a sum (two); the bound of the module notes
+/// holds for both. The loops over rows and lanes have fixed lengths, so
 /// they unroll and vectorise.
 #[inline(always)]
-fn tile_scores(tile: &[f32], panel: &[f32], norms: &[f32; LANES]) -> [[f32; LANES]; TILE_ROWS] {
+fn tile_scores<const FUSED: bool>(
+    tile: &[f32],
+    panel: &[f32],
+    norms: &[f32; LANES],
+) -> [[f32; LANES]; TILE_ROWS] {
     let mut acc = [*norms; TILE_ROWS];
     for (x, c) in tile.chunks_exact(TILE_ROWS).zip(panel.chunks_exact(LANES)) {
         let x: &[f32; TILE_ROWS] = x.try_into().expect("whole tiles");
         let c: &[f32; LANES] = c.try_into().expect("whole panels");
         for (a, &xr) in acc.iter_mut().zip(x) {
             for (al, &cl) in a.iter_mut().zip(c) {
-                *al += xr * cl;
+                *al = if FUSED {
+                    xr.mul_add(cl, *al)
+                } else {
+                    *al + xr * cl
+                };
             }
         }
     }
