@@ -174,7 +174,7 @@ impl Blocked {
                 // Only the codeword of least score is in the window (the
                 // usual case): no need to look through the scores.
                 Some(top) if least.second > top => {
-                    let i = first_at(scores, least.first);
+                    let i = lone_least(scores, least);
                     Nearest {
                         index: i as u32,
                         distance_sq: distance_sq(&codewords[i * d..][..d], x),
@@ -294,17 +294,19 @@ impl Blocked {
 }
 
 /// The least and second least score of a row (equal when two codewords
-/// share the least).
+/// share the least), and the lane of the least (the first such lane).
 #[derive(Debug, Clone, Copy)]
 struct Least {
     first: f32,
     second: f32,
+    lane: usize,
 }
 
 impl Least {
     const NONE: Least = Least {
         first: f32::INFINITY,
         second: f32::INFINITY,
+        lane: 0,
     };
 }
 
@@ -383,7 +385,7 @@ fn tile_scores<const FUSED: bool>(
 
 /// The least scores of one row ([`Least`]). Kept apart from the kernel
 /// and compiled like it: lane by lane minima over whole panels, then
-/// merged; the codeword is then found by [`first_at`].
+/// merged; the codeword is then found by [`lone_least`].
 #[multiversion(targets("x86_64+avx2+avx"))]
 fn least_two(scores: &[f32]) -> Least {
     let mut lo = [f32::INFINITY; LANES];
@@ -399,32 +401,28 @@ fn least_two(scores: &[f32]) -> Least {
     }
     // Selects rather than branches: which lane holds the least is random,
     // so branches on it would be mispredicted half the time.
-    let (mut first, mut second) = (f32::INFINITY, f32::INFINITY);
-    for (&l, &h) in lo.iter().zip(&hi) {
+    let (mut first, mut second, mut lane) = (f32::INFINITY, f32::INFINITY, 0);
+    for (i, (&l, &h)) in lo.iter().zip(&hi).enumerate() {
         let above = if l < first { first } else { l };
         second = if above < second { above } else { second };
         second = if h < second { h } else { second };
+        lane = if l < first { i } else { lane };
         first = if l < first { l } else { first };
     }
-    Least { first, second }
+    Least {
+        first,
+        second,
+        lane,
+    }
 }
 
-/// The first i with `scores[i] == value` (`scores.len()` if none), a
-/// chunk of [`LANES`] at a time (compiled like [`score_panels`]).
-#[multiversion(targets("x86_64+avx2+avx"))]
-fn first_at(scores: &[f32], value: f32) -> usize {
-    let mut chunks = scores.chunks_exact(LANES);
-    for (n, c) in chunks.by_ref().enumerate() {
-        if c.iter().fold(false, |any, &v| any | (v == value)) {
-            return n * LANES + c.iter().position(|&v| v == value).unwrap_or(0);
-        }
-    }
-    let base = scores.len() - chunks.remainder().len();
-    base + chunks
-        .remainder()
-        .iter()
-        .position(|&v| v == value)
-        .unwrap_or(chunks.remainder().len())
+/// The codeword of least score when no other score equals it: the one in
+/// `least.lane` (panels are few, so this is a short walk down one lane).
+fn lone_least(scores: &[f32], least: Least) -> usize {
+    (least.lane..scores.len())
+        .step_by(LANES)
+        .find(|&i| scores[i] == least.first)
+        .expect("the least score is in its lane")
 }
 
 /// Collects into `found` (cleared first) every i with `scores[i] ≤ top`,
