@@ -158,10 +158,31 @@ pub fn xyz_to_linear(xyz: [f64; 3]) -> [f64; 3] {
 // CIE 15 lightness function of a relative value t = X/Xn (or Y/Yn, Z/Zn).
 fn lab_f(t: f64) -> f64 {
     if t > CIELAB_EPSILON {
-        t.cbrt()
+        cube_root(t)
     } else {
         (CIELAB_KAPPA * t + 16.0) / 116.0
     }
+}
+
+/// The cube root of `t` for t > 0, within two units in the last place of
+/// `f64::cbrt` (checked in the tests), several times faster: the standard
+/// library's is correctly rounded, which costs more than CIELAB needs, and
+/// it was a tenth of a palette run. A guess from the exponent (its bits
+/// divided by three), two Halley steps (each triples the correct bits:
+/// about 5 → 15 → 45) and a Newton step (→ full precision). Zero, negative
+/// and non-finite `t` go to `f64::cbrt`.
+fn cube_root(t: f64) -> f64 {
+    if !(t.is_finite() && t >= f64::MIN_POSITIVE) {
+        return t.cbrt();
+    }
+    // Exponent bias: a third of the bits lands the exponent near e/3, and
+    // the constant restores two thirds of the bias (1023 · 2/3 · 2⁵²).
+    let mut y = f64::from_bits(t.to_bits() / 3 + 0x2AA0_0000_0000_0000);
+    for _ in 0..2 {
+        let y3 = y * y * y;
+        y *= (y3 + 2.0 * t) / (2.0 * y3 + t);
+    }
+    y - (y * y * y - t) / (3.0 * y * y)
 }
 
 // Inverse of `lab_f`; the break point f = 6/29 corresponds to t = ε.
@@ -276,6 +297,28 @@ mod tests {
 
     fn max_abs_diff(a: [f64; 3], b: [f64; 3]) -> f64 {
         (0..3).map(|i| (a[i] - b[i]).abs()).fold(0.0, f64::max)
+    }
+
+    #[test]
+    fn cube_root_is_within_two_ulps_of_the_standard_library() {
+        // Oracle: `f64::cbrt`, correctly rounded. Log-spaced over the
+        // whole range CIELAB meets (t above ε ≈ 0.0089, up to far
+        // out-of-gamut values), plus exact cubes.
+        let ulps = |a: f64, b: f64| (a.to_bits() as i64 - b.to_bits() as i64).unsigned_abs();
+        let mut worst = 0;
+        for i in 0..=200_000 {
+            let t = 10f64.powf(-6.0 + 12.0 * i as f64 / 200_000.0);
+            worst = worst.max(ulps(cube_root(t), t.cbrt()));
+        }
+        for k in 1..=1000 {
+            let c = k as f64 / 100.0;
+            worst = worst.max(ulps(cube_root(c * c * c), (c * c * c).cbrt()));
+        }
+        assert!(worst <= 2, "{worst} ulps");
+        assert_eq!(cube_root(0.0), 0.0);
+        assert!(cube_root(f64::NAN).is_nan());
+        assert_eq!(cube_root(f64::INFINITY), f64::INFINITY);
+        assert_eq!(cube_root(-8.0), -2.0);
     }
 
     #[test]
