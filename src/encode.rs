@@ -1,11 +1,15 @@
 //! Exact nearest-codeword search: a k-d tree over the codewords for low
 //! dimensions (colours, short frames), a scan for higher ones (a blocked
 //! kernel when many queries come at once, see [`Encoder::nearest_batch`]),
-//! and batch encoding in fixed parallel chunks.
+//! candidate lists per cell of space for many batches of colours
+//! ([`Encoder::nearest_batch_cached`]), and batch encoding in fixed
+//! parallel chunks.
 //!
 //! Never trains. Distances here are squared Euclidean in `f32`, summed in
 //! component order; every method computes them the same way, so all methods
 //! return the same index, and ties go to the lowest codeword index.
+
+use std::sync::OnceLock;
 
 use rayon::prelude::*;
 
@@ -13,7 +17,10 @@ use crate::error::{Error, ErrorKind, Result};
 use crate::vectors::VectorSet;
 
 mod batch;
+mod cells;
 mod direct;
+
+pub use cells::CellLists;
 
 /// The nearest codeword to a query.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -370,6 +377,9 @@ pub struct Encoder {
     tree: Option<KdTree>,
     /// The codewords laid out for a batch kernel.
     blocked: Option<Kernel>,
+    /// Candidate lists per cell of space for [`Encoder::nearest_batch_cached`],
+    /// made on its first call (`None` inside: no grid for these codewords).
+    cells: OnceLock<Option<cells::Cells>>,
 }
 
 /// The batch kernel of a scan.
@@ -433,6 +443,7 @@ impl Encoder {
             codewords: codewords.to_vec(),
             tree: tree.then(|| KdTree::build(codewords, dimension)),
             blocked: blocked.then(|| Kernel::new(codewords, dimension)),
+            cells: OnceLock::new(),
         })
     }
 
@@ -501,6 +512,69 @@ impl Encoder {
                 }
             }
         }
+    }
+
+    /// Like [`Encoder::nearest_batch`], bit for bit, for encoders that answer
+    /// many batches of three-component queries lying close together, such
+    /// as the distinct colours of an image in ascending order. Space around
+    /// the codewords is cut into cells, and each query is measured only
+    /// against the codewords that can be nearest somewhere in its cell. The
+    /// lists are made when a query first lands in a cell and kept in the
+    /// encoder for later queries and batches (on any thread), so the first
+    /// batches pay for them. Queries outside the cells (far from all
+    /// codewords, or not finite) go through the scan kernel, or when the
+    /// tree answers batches, through the tree if finite and the linear scan
+    /// if not; so for three components every answer is [`nearest_linear`]'s,
+    /// bit for bit. Encoders of another dimension answer as
+    /// [`Encoder::nearest_batch`].
+    ///
+    /// # Panics
+    /// If `rows.len()` is not `out.len()` × the dimension.
+    pub fn nearest_batch_cached(&self, rows: &[f32], out: &mut [Nearest]) {
+        if self.dimension != 3 {
+            return self.nearest_batch(rows, out);
+        }
+        assert_rows(rows, out.len(), 3);
+        let mut missed = Vec::new();
+        match self
+            .cells
+            .get_or_init(|| cells::Cells::new(&self.codewords))
+        {
+            Some(cells) => cells.nearest_batch(rows, out, &mut missed),
+            None => missed.extend(0..out.len()),
+        }
+        if missed.is_empty() {
+            return;
+        }
+        if self.blocked.is_none() {
+            // The tree, exact for finite queries, would answer a NaN query
+            // with no codeword at all.
+            for &i in &missed {
+                let x = &rows[i * 3..i * 3 + 3];
+                out[i] = if x.iter().all(|v| v.is_finite()) {
+                    self.nearest(x)
+                } else {
+                    nearest_linear(&self.codewords, 3, x)
+                };
+            }
+            return;
+        }
+        let rows: Vec<f32> = missed
+            .iter()
+            .flat_map(|&i| rows[i * 3..i * 3 + 3].iter().copied())
+            .collect();
+        let mut found = vec![Nearest::NONE; missed.len()];
+        self.nearest_batch(&rows, &mut found);
+        for (&i, f) in missed.iter().zip(found) {
+            out[i] = f;
+        }
+    }
+
+    /// How long the candidate lists [`Encoder::nearest_batch_cached`] has
+    /// made so far are, or `None` before its first call or when it does not
+    /// use cells: what decides its speed.
+    pub fn cell_lists(&self) -> Option<CellLists> {
+        self.cells.get()?.as_ref().map(cells::Cells::lists)
     }
 
     /// Like [`Encoder::nearest_batch`], with the distance to the runner-up:

@@ -606,8 +606,9 @@ impl Palette {
     pub fn indices_of(&self, colours: &[([u8; 4], u64)]) -> Vec<u32> {
         let d = self.layout.dimension();
         let mut out = vec![0u32; colours.len()];
-        // Batches of working points: the encoder's batch kernel is several
-        // times faster than one search per colour.
+        // Batches of working points through the encoder's cached search:
+        // the colours arrive in ascending order, so consecutive chunks meet
+        // the same cells of colour space and reuse their candidate lists.
         out.par_chunks_mut(CHUNK_ROWS)
             .zip(colours.par_chunks(CHUNK_ROWS))
             .for_each(|(out, colours)| {
@@ -624,7 +625,7 @@ impl Palette {
                     }
                 }
                 let mut found = vec![Nearest::NONE; searched.len()];
-                self.encoder.nearest_batch(&points, &mut found);
+                self.encoder.nearest_batch_cached(&points, &mut found);
                 for (&j, f) in searched.iter().zip(&found) {
                     out[j] = f.index + self.first_visible as u32;
                 }

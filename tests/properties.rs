@@ -128,7 +128,7 @@ proptest! {
     }
 
     /// Every search method (k-d tree, scan, automatic choice; one query at
-    /// a time and in batches) returns exactly what the linear scan returns:
+    /// a time, in batches and in cached batches) returns exactly what the linear scan returns:
     /// the nearest codeword, and among equally near ones the lowest index
     /// (the tie rule documented on `vqforge::encode`). Grid coordinates
     /// make exact ties frequent, including duplicate codewords.
@@ -147,6 +147,12 @@ proptest! {
             let mut batch = vec![Nearest::NONE; oracle.len()];
             e.nearest_batch(&queries, &mut batch);
             prop_assert_eq!(&batch, &oracle, "{:?} batch", method);
+            // Twice: the second time through the lists the first one made.
+            for pass in 0..2 {
+                let mut cached = vec![Nearest::NONE; oracle.len()];
+                e.nearest_batch_cached(&queries, &mut cached);
+                prop_assert_eq!(&cached, &oracle, "{:?} cached batch, pass {}", method, pass);
+            }
         }
     }
 

@@ -97,7 +97,7 @@ fn main() {
                 &args[4],
                 &indices,
                 seconds,
-                "distinct colours (bitmap), then exact-difference kernel",
+                "distinct colours (bitmap), then cell candidate lists",
                 threads,
             );
         }
