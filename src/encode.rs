@@ -480,7 +480,16 @@ impl Encoder {
     #[inline]
     pub fn nearest(&self, query: &[f32]) -> Nearest {
         match &self.tree {
-            Some(t) => t.nearest(query),
+            // A query no codeword has a distance below +∞ from (NaN
+            // components, or so far out that every distance overflows):
+            // the tree offers nothing, the linear scan answers codeword 0.
+            Some(t) => match t.nearest(query) {
+                n if n.index == u32::MAX => Nearest {
+                    index: 0,
+                    distance_sq: f32::INFINITY,
+                },
+                n => n,
+            },
             None => nearest_linear(&self.codewords, self.dimension, query),
         }
     }
@@ -522,9 +531,9 @@ impl Encoder {
     /// lists are made when a query first lands in a cell and kept in the
     /// encoder for later queries and batches (on any thread), so the first
     /// batches pay for them. Queries outside the cells (far from all
-    /// codewords, or not finite) go through the scan kernel, or when the
-    /// tree answers batches, through the tree if finite and the linear scan
-    /// if not; so for three components every answer is [`nearest_linear`]'s,
+    /// codewords, or not finite) go through the scan kernel, or the tree
+    /// when it answers batches; so for three components every answer is
+    /// [`nearest_linear`]'s,
     /// bit for bit. Encoders of another dimension answer as
     /// [`Encoder::nearest_batch`].
     ///
@@ -547,15 +556,8 @@ impl Encoder {
             return;
         }
         if self.blocked.is_none() {
-            // The tree, exact for finite queries, would answer a NaN query
-            // with no codeword at all.
             for &i in &missed {
-                let x = &rows[i * 3..i * 3 + 3];
-                out[i] = if x.iter().all(|v| v.is_finite()) {
-                    self.nearest(x)
-                } else {
-                    nearest_linear(&self.codewords, 3, x)
-                };
+                out[i] = self.nearest(&rows[i * 3..i * 3 + 3]);
             }
             return;
         }

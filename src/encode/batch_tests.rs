@@ -228,6 +228,18 @@ fn queries_beyond_the_bound_are_measured_exactly() {
     // Codewords so large that every score could overflow.
     let big = [1.0e19f32, 0.0, -1.0e19, 5.0];
     check(&big, 2, &q, "huge codewords");
+    // The tree agrees with the linear scan (the oracle) on them too, also
+    // where no distance is below +∞ and the scan answers codeword 0.
+    for cw in [&cw[..], &big[..]] {
+        let tree = Encoder::with_method(cw, 2, SearchMethod::KdTree).unwrap();
+        for (i, x) in q.chunks_exact(2).enumerate() {
+            assert_eq!(
+                bits(&tree.nearest(x)),
+                bits(&nearest_linear(cw, 2, x)),
+                "tree, query {i}"
+            );
+        }
+    }
 }
 
 #[test]
