@@ -130,14 +130,22 @@ pub(crate) fn spread_opaque<F>(image: &RgbaImage, bound: u32, values: F) -> Opti
 where
     F: Fn(&[[u8; 4]], &mut [u32]) + Sync,
 {
-    let set = opaque_set(&image.pixels)?;
+    let pixels = &image.pixels;
+    let set = opaque_set(pixels)?;
+    // The output's fresh pages are faulted in and written on one thread
+    // while the other threads search: faults taken by all threads at once
+    // during the spreading cost about as long as on one (they queue in the
+    // kernel), so this hides most of their time. Every slot is overwritten.
+    let out = || vec![u32::MAX; pixels.len()];
     Some(if bound <= 256 {
         // Values below 256 fit in a byte exactly.
-        let narrow = set.per_member(&values, |v| v as u8);
-        set.spread_all(&image.pixels, &narrow)
+        let (narrow, mut out) = rayon::join(|| set.per_member(&values, |v| v as u8), out);
+        set.spread_into(pixels, &narrow, &mut out);
+        out
     } else {
-        let wide = set.per_member(&values, |v| v);
-        set.spread_all(&image.pixels, &wide)
+        let (wide, mut out) = rayon::join(|| set.per_member(&values, |v| v), out);
+        set.spread_into(pixels, &wide, &mut out);
+        out
     })
 }
 
@@ -277,18 +285,17 @@ impl RgbSet {
         }
     }
 
-    /// For every pixel of `pixels` (all members), row by row, the value its
-    /// colour has in `per_member`, on all threads.
-    fn spread_all<T: Copy + Into<u32> + Sync>(
+    /// Sets `out[i]` to the value the colour of `pixels[i]` (a member) has
+    /// in `per_member`, on all threads.
+    fn spread_into<T: Copy + Into<u32> + Sync>(
         &self,
         pixels: &[[u8; 4]],
         per_member: &[T],
-    ) -> Vec<u32> {
-        let mut out = vec![0u32; pixels.len()];
+        out: &mut [u32],
+    ) {
         out.par_chunks_mut(CHUNK_PIXELS)
             .zip(pixels.par_chunks(CHUNK_PIXELS))
             .for_each(|(out, pixels)| spread(self, pixels, per_member, out));
-        out
     }
 
     /// How many of `pixels` (all members) have each member, by rank, in
@@ -519,7 +526,11 @@ impl<'a> ColourIndex<'a> {
         }
         let pixels = &self.image.pixels;
         Ok(match &self.ranks {
-            Ranks::Bitmap(set) => set.spread_all(pixels, per_colour),
+            Ranks::Bitmap(set) => {
+                let mut out = vec![0u32; pixels.len()];
+                set.spread_into(pixels, per_colour, &mut out);
+                out
+            }
             Ranks::Hashed(map) => pixels
                 .par_iter()
                 .with_min_len(CHUNK_PIXELS)
