@@ -12,7 +12,7 @@ use crate::colour::{delta_e2000, rgb8_to_lab, ColourSpace, DisplayFormat, Grid};
 use crate::encode::{Encoder, Nearest, CHUNK_ROWS};
 use crate::error::{Error, ErrorKind, Result};
 use crate::kmeans::{train_constrained, CheckedTrainConfig, Constraint, TrainEvent, TrainReport};
-use crate::load::{colour_histogram, ColourIndex, RgbaImage};
+use crate::load::{colour_histogram, spread_opaque, ColourIndex, RgbaImage};
 use crate::metrics::psnr_db;
 use crate::vectors::VectorSet;
 
@@ -604,39 +604,62 @@ impl Palette {
     /// [`Palette::index_of`] for every colour of `colours` (as read, with
     /// pixel counts), on all threads.
     pub fn indices_of(&self, colours: &[([u8; 4], u64)]) -> Vec<u32> {
-        let d = self.layout.dimension();
         let mut out = vec![0u32; colours.len()];
-        // Batches of working points through the encoder's cached search:
-        // the colours arrive in ascending order, so consecutive chunks meet
-        // the same cells of colour space and reuse their candidate lists.
+        // Colours in ascending order: consecutive chunks meet the same
+        // cells of colour space in the encoder's cached search.
         out.par_chunks_mut(CHUNK_ROWS)
             .zip(colours.par_chunks(CHUNK_ROWS))
-            .for_each(|(out, colours)| {
-                let mut points = Vec::with_capacity(colours.len() * d);
-                let mut searched = Vec::with_capacity(colours.len());
-                for (j, &(c, _)) in colours.iter().enumerate() {
-                    match self.reserved_for(c) {
-                        Some(i) => out[j] = i,
-                        None => {
-                            let v = working_point(handled(c, self.layout.alpha), &self.layout);
-                            points.extend_from_slice(&v[..d]);
-                            searched.push(j);
-                        }
-                    }
-                }
-                let mut found = vec![Nearest::NONE; searched.len()];
-                self.encoder.nearest_batch_cached(&points, &mut found);
-                for (&j, f) in searched.iter().zip(&found) {
-                    out[j] = f.index + self.first_visible as u32;
-                }
-            });
+            .for_each(|(out, colours)| self.indices_into(colours.iter().map(|&(c, _)| c), out));
         out
     }
 
-    /// Each distinct colour searched once, then handed to its pixels.
+    /// [`Palette::index_of`] for every colour of `colours` into `out`, on
+    /// this thread: the colours are searched in batches of working points
+    /// through the encoder's cached search (several times faster than one
+    /// search per colour; colours in ascending order reuse its cells).
+    fn indices_into(&self, colours: impl Iterator<Item = [u8; 4]>, out: &mut [u32]) {
+        let d = self.layout.dimension();
+        let mut colours = colours.enumerate().peekable();
+        let mut points = Vec::with_capacity(CHUNK_ROWS.min(out.len()) * d);
+        let mut searched = Vec::with_capacity(CHUNK_ROWS.min(out.len()));
+        let mut found = Vec::with_capacity(CHUNK_ROWS.min(out.len()));
+        while colours.peek().is_some() {
+            points.clear();
+            searched.clear();
+            for (j, c) in colours.by_ref().take(CHUNK_ROWS) {
+                match self.reserved_for(c) {
+                    Some(i) => out[j] = i,
+                    None => {
+                        let v = working_point(handled(c, self.layout.alpha), &self.layout);
+                        points.extend_from_slice(&v[..d]);
+                        searched.push(j);
+                    }
+                }
+            }
+            found.clear();
+            found.resize(searched.len(), Nearest::NONE);
+            self.encoder.nearest_batch_cached(&points, &mut found);
+            for (&j, f) in searched.iter().zip(&found) {
+                out[j] = f.index + self.first_visible as u32;
+            }
+        }
+    }
+
+    /// Each distinct colour searched once, then handed to its pixels. A
+    /// large opaque image (the usual photo) never lists its colours: they
+    /// go from the bitmap of its colours to the search piece by piece.
     fn map_plain(&self, image: &RgbaImage) -> Result<Vec<u32>> {
-        let colours = ColourIndex::uncounted(image);
-        colours.per_pixel(&self.indices_of(colours.colours()))
+        let entries = self.len() as u32;
+        let spread = spread_opaque(image, entries, |colours, out| {
+            self.indices_into(colours.iter().copied(), out)
+        });
+        match spread {
+            Some(indices) => Ok(indices),
+            None => {
+                let colours = ColourIndex::new(image);
+                colours.per_pixel(&self.indices_of(colours.colours()))
+            }
+        }
     }
 
     /// [`Palette::map_image`] and [`measure`] in one step. Without

@@ -74,7 +74,7 @@ type Histogram = Vec<([u8; 4], u64)>;
 /// assert_eq!(colour_histogram(&image), [(blue, 1), (red, 2)]);
 /// ```
 pub fn colour_histogram(image: &RgbaImage) -> Vec<([u8; 4], u64)> {
-    match opaque_histogram(&image.pixels, Counts::Wanted) {
+    match opaque_histogram(&image.pixels) {
         Some((colours, _)) => colours,
         None => sorted_histogram(&image.pixels),
     }
@@ -99,24 +99,54 @@ fn sorted_histogram(pixels: &[[u8; 4]]) -> Vec<([u8; 4], u64)> {
     out
 }
 
-/// Whether the bitmap path counts the pixels of each colour: mapping needs
-/// only the colours, and counting is a pass over every pixel.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-enum Counts {
-    Wanted,
-    /// Every count is left at 0.
-    Skipped,
-}
-
 /// The histogram and RGB set of `pixels` when they are many enough and all
 /// opaque; `None` otherwise.
-fn opaque_histogram(pixels: &[[u8; 4]], counts: Counts) -> Option<(Histogram, RgbSet)> {
+fn opaque_histogram(pixels: &[[u8; 4]]) -> Option<(Histogram, RgbSet)> {
+    let set = opaque_set(pixels)?;
+    let colours = set.histogram(pixels);
+    Some((colours, set))
+}
+
+/// The RGB set of `pixels` when they are many enough for the bitmap and all
+/// opaque; `None` otherwise.
+fn opaque_set(pixels: &[[u8; 4]]) -> Option<RgbSet> {
     if pixels.len() < BITMAP_MIN_PIXELS {
         return None;
     }
-    let set = RgbSet::of_opaque(pixels)?;
-    let colours = set.histogram(pixels, counts);
-    Some((colours, set))
+    RgbSet::of_opaque(pixels)
+}
+
+/// For mapping a large opaque image without listing its colours first:
+/// `values` is handed the image's distinct colours piece by piece, in
+/// [`colour_histogram`]'s order, and fills one value per colour, each
+/// below `bound`; every pixel, row by row, then gets its colour's value.
+/// Pieces are handed out on all threads. `None`, before any call of
+/// `values`, when the image is too small for the bitmap or not opaque: then
+/// [`ColourIndex`] does the job.
+///
+/// Values are kept in one byte each when `bound` ≤ 256 (a palette's
+/// indices), so the table every pixel looks up is a quarter of the size.
+pub(crate) fn spread_opaque<F>(image: &RgbaImage, bound: u32, values: F) -> Option<Vec<u32>>
+where
+    F: Fn(&[[u8; 4]], &mut [u32]) + Sync,
+{
+    let pixels = &image.pixels;
+    let set = opaque_set(pixels)?;
+    // The output's fresh pages are faulted in and written on one thread
+    // while the other threads search: faults taken by all threads at once
+    // during the spreading cost about as long as on one (they queue in the
+    // kernel), so this hides most of their time. Every slot is overwritten.
+    let out = || vec![u32::MAX; pixels.len()];
+    Some(if bound <= 256 {
+        // Values below 256 fit in a byte exactly.
+        let (narrow, mut out) = rayon::join(|| set.per_member(&values, |v| v as u8), out);
+        set.spread_into(pixels, &narrow, &mut out);
+        out
+    } else {
+        let (wide, mut out) = rayon::join(|| set.per_member(&values, |v| v), out);
+        set.spread_into(pixels, &wide, &mut out);
+        out
+    })
 }
 
 /// The 24-bit RGB value of a pixel: `0xRRGGBB`.
@@ -158,8 +188,7 @@ impl RgbSet {
             Some(())
         })?;
         let words: Vec<u64> = words.into_iter().map(AtomicU64::into_inner).collect();
-        let mut before = Vec::with_capacity(RGB_WORDS);
-        let len = count_before(&words, &mut before);
+        let (before, len) = members_before(&words);
         Some(RgbSet { words, before, len })
     }
 
@@ -179,40 +208,17 @@ impl RgbSet {
     }
 
     /// The members in ascending order as opaque RGBA, each with how many
-    /// of `pixels` (all members) have it, or 0 when the counts are skipped.
-    fn histogram(&self, pixels: &[[u8; 4]], counts: Counts) -> Histogram {
-        let counts = match counts {
-            Counts::Wanted => self.count(pixels),
-            Counts::Skipped => Vec::new(),
-        };
-        // The bitmap in pieces, each with the stretch of the list its
-        // members fill, walked on all threads.
+    /// of `pixels` (all members) have it.
+    fn histogram(&self, pixels: &[[u8; 4]]) -> Histogram {
+        let counts = self.count(pixels);
         let mut out = vec![([0u8; 4], 0u64); self.len];
-        let mut pieces = Vec::with_capacity(RGB_WORDS / WORDS_PER_PIECE);
-        let mut rest = out.as_mut_slice();
-        for first in (0..RGB_WORDS).step_by(WORDS_PER_PIECE) {
-            let end = first + WORDS_PER_PIECE;
-            let members = self.before.get(end).map_or(self.len, |&b| b as usize)
-                - self.before[first] as usize;
-            let (stretch, tail) = rest.split_at_mut(members);
-            pieces.push((first, stretch));
-            rest = tail;
-        }
-        pieces.into_par_iter().for_each(|(first, stretch)| {
+        self.pieces(&mut out).for_each(|(first, stretch)| {
             let mut slots = stretch.iter_mut();
-            for (w, &word) in self.words[first..first + WORDS_PER_PIECE]
-                .iter()
-                .enumerate()
-            {
-                let mut bits = word;
-                while bits != 0 {
-                    let rgb = ((first + w) as u32) << 6 | bits.trailing_zeros();
-                    if let Some(slot) = slots.next() {
-                        slot.0 = (rgb << 8 | 0xFF).to_be_bytes();
-                    }
-                    bits &= bits - 1;
+            self.walk(first, |colour| {
+                if let Some(slot) = slots.next() {
+                    slot.0 = colour;
                 }
-            }
+            });
             let start = self.before[first] as usize;
             for part in &counts {
                 for (slot, &n) in stretch.iter_mut().zip(&part[start..]) {
@@ -221,6 +227,75 @@ impl RgbSet {
             }
         });
         out
+    }
+
+    /// One value per member, by rank: `values` fills them for the members
+    /// of each piece of the bitmap, `narrow` stores each.
+    fn per_member<T, F>(&self, values: &F, narrow: fn(u32) -> T) -> Vec<T>
+    where
+        T: Copy + Default + Send,
+        F: Fn(&[[u8; 4]], &mut [u32]) + Sync,
+    {
+        let mut out = vec![T::default(); self.len];
+        self.pieces(&mut out).for_each(|(first, stretch)| {
+            let mut colours = Vec::with_capacity(stretch.len());
+            self.walk(first, |colour| colours.push(colour));
+            let mut found = vec![0u32; colours.len()];
+            values(&colours, &mut found);
+            for (slot, &v) in stretch.iter_mut().zip(&found) {
+                *slot = narrow(v);
+            }
+        });
+        out
+    }
+
+    /// The bitmap in pieces of [`WORDS_PER_PIECE`] words, each with the
+    /// stretch of `list` (one slot per member, by rank) its members fill,
+    /// to be walked on all threads.
+    fn pieces<'s, T: Send>(
+        &self,
+        list: &'s mut [T],
+    ) -> impl ParallelIterator<Item = (usize, &'s mut [T])> {
+        let mut pieces = Vec::with_capacity(RGB_WORDS / WORDS_PER_PIECE);
+        let mut rest = list;
+        for first in (0..RGB_WORDS).step_by(WORDS_PER_PIECE) {
+            let end = first + WORDS_PER_PIECE;
+            let members = self.before.get(end).map_or(self.len, |&b| b as usize)
+                - self.before[first] as usize;
+            let (stretch, tail) = rest.split_at_mut(members);
+            pieces.push((first, stretch));
+            rest = tail;
+        }
+        pieces.into_par_iter()
+    }
+
+    /// Calls `visit` with each member in the piece of the bitmap that
+    /// starts at word `first`, in ascending order, as opaque RGBA.
+    fn walk(&self, first: usize, mut visit: impl FnMut([u8; 4])) {
+        for (w, &word) in self.words[first..first + WORDS_PER_PIECE]
+            .iter()
+            .enumerate()
+        {
+            let mut bits = word;
+            while bits != 0 {
+                let rgb = ((first + w) as u32) << 6 | bits.trailing_zeros();
+                visit((rgb << 8 | 0xFF).to_be_bytes());
+                bits &= bits - 1;
+            }
+        }
+    }
+
+    /// Sets `out[i]` to the value the colour of `pixels[i]` (a member) has
+    /// in `per_member`, on all threads.
+    fn spread_into<T: Copy + Into<u32> + Sync>(
+        &self,
+        pixels: &[[u8; 4]],
+        per_member: &[T],
+        out: &mut [u32],
+    ) {
+        out.par_chunks_mut(CHUNK_PIXELS)
+            .zip(pixels.par_chunks(CHUNK_PIXELS))
+            .for_each(|(out, pixels)| spread(self, pixels, per_member, out));
     }
 
     /// How many of `pixels` (all members) have each member, by rank, in
@@ -254,18 +329,42 @@ impl fmt::Debug for RgbSet {
 /// Words of the bitmap per piece when listing its members on all threads.
 const WORDS_PER_PIECE: usize = 1 << 12;
 
-/// Fills `before` with the members in the words before each word of
-/// `words`; returns the members in all. (Compiled also for processors with
-/// a population-count instruction, chosen at run time, like the loops
-/// below: without it a count takes a dozen instructions.)
-#[multiversion(targets("x86_64+popcnt"))]
-fn count_before(words: &[u64], before: &mut Vec<u32>) -> usize {
+/// For each word of `words`, the members in the words before it, and the
+/// members in all. Pieces of the bitmap are counted on all threads, then
+/// each piece's counts are shifted by the members of the pieces before it.
+fn members_before(words: &[u64]) -> (Vec<u32>, usize) {
+    let mut before = vec![0u32; words.len()];
+    let in_pieces: Vec<u32> = before
+        .par_chunks_mut(WORDS_PER_PIECE)
+        .zip(words.par_chunks(WORDS_PER_PIECE))
+        .map(|(before, words)| count_before(words, before))
+        .collect();
+    let mut starts = Vec::with_capacity(in_pieces.len());
     let mut len = 0u32;
-    for w in words {
-        before.push(len);
+    for n in in_pieces {
+        starts.push(len);
+        len += n;
+    }
+    before
+        .par_chunks_mut(WORDS_PER_PIECE)
+        .zip(starts)
+        .skip(1)
+        .for_each(|(before, start)| before.iter_mut().for_each(|b| *b += start));
+    (before, len as usize)
+}
+
+/// Fills `before` with the members in the words of `words` before each;
+/// returns the members in all. (Compiled also for processors with a
+/// population-count instruction, chosen at run time, like the loops below:
+/// without it a count takes a dozen instructions.)
+#[multiversion(targets("x86_64+popcnt"))]
+fn count_before(words: &[u64], before: &mut [u32]) -> u32 {
+    let mut len = 0u32;
+    for (b, w) in before.iter_mut().zip(words) {
+        *b = len;
         len += w.count_ones();
     }
-    len as usize
+    len
 }
 
 /// Adds one to `counts[rank]` for every pixel of `pixels` (all members of
@@ -282,9 +381,14 @@ fn count_ranks(set: &RgbSet, pixels: &[[u8; 4]], counts: &mut [u32]) {
 /// `out[i]` = `per_colour[rank of pixels[i]]`, without branches like
 /// [`count_ranks`].
 #[multiversion(targets("x86_64+popcnt"))]
-fn spread(set: &RgbSet, pixels: &[[u8; 4]], per_colour: &[u32], out: &mut [u32]) {
+fn spread<T: Copy + Into<u32>>(
+    set: &RgbSet,
+    pixels: &[[u8; 4]],
+    per_colour: &[T],
+    out: &mut [u32],
+) {
     for (slot, &p) in out.iter_mut().zip(pixels) {
-        *slot = per_colour[set.rank(rgb_of(p))];
+        *slot = per_colour[set.rank(rgb_of(p))].into();
     }
 }
 
@@ -360,18 +464,7 @@ pub struct ColourIndex<'a> {
 impl<'a> ColourIndex<'a> {
     /// Counts the colours of `image` (on all threads when it is large).
     pub fn new(image: &'a RgbaImage) -> ColourIndex<'a> {
-        Self::build(image, Counts::Wanted)
-    }
-
-    /// Like [`ColourIndex::new`], but the pixel counts of an opaque image
-    /// are left at 0 (it saves a pass over the pixels): for mapping, which
-    /// needs only the colours and their ranks.
-    pub(crate) fn uncounted(image: &'a RgbaImage) -> ColourIndex<'a> {
-        Self::build(image, Counts::Skipped)
-    }
-
-    fn build(image: &'a RgbaImage, counts: Counts) -> ColourIndex<'a> {
-        let (colours, ranks) = match opaque_histogram(&image.pixels, counts) {
+        let (colours, ranks) = match opaque_histogram(&image.pixels) {
             Some((colours, set)) => (colours, Ranks::Bitmap(set)),
             None => {
                 let colours = sorted_histogram(&image.pixels);
@@ -435,9 +528,7 @@ impl<'a> ColourIndex<'a> {
         Ok(match &self.ranks {
             Ranks::Bitmap(set) => {
                 let mut out = vec![0u32; pixels.len()];
-                out.par_chunks_mut(CHUNK_PIXELS)
-                    .zip(pixels.par_chunks(CHUNK_PIXELS))
-                    .for_each(|(out, pixels)| spread(set, pixels, per_colour, out));
+                set.spread_into(pixels, per_colour, &mut out);
                 out
             }
             Ranks::Hashed(map) => pixels

@@ -30,9 +30,7 @@ fn map_count(pixels: &[[u8; 4]]) -> Vec<([u8; 4], u64)> {
 
 /// The bitmap path on `pixels` whatever their number (all opaque).
 fn bitmap_histogram(pixels: &[[u8; 4]]) -> Vec<([u8; 4], u64)> {
-    RgbSet::of_opaque(pixels)
-        .unwrap()
-        .histogram(pixels, Counts::Wanted)
+    RgbSet::of_opaque(pixels).unwrap().histogram(pixels)
 }
 
 fn with_threads<T: Send>(threads: usize, f: impl FnOnce() -> T + Send) -> T {
@@ -111,8 +109,7 @@ fn bitmap_equals_sorting_on_the_photos() {
         ("chelsea twice", twice(chelsea)),
     ] {
         assert!(image.pixels.len() >= BITMAP_MIN_PIXELS, "{name}");
-        let (colours, _) =
-            opaque_histogram(&image.pixels, Counts::Wanted).expect("an opaque photo");
+        let (colours, _) = opaque_histogram(&image.pixels).expect("an opaque photo");
         assert_eq!(colours, sorted_histogram(&image.pixels), "{name}");
         assert_eq!(colours, map_count(&image.pixels), "{name}");
         assert_eq!(colour_histogram(&image), colours, "{name}");
@@ -128,7 +125,7 @@ fn partial_alpha_falls_back_to_sorting() {
     let last = image.pixels.len() - 1;
     image.pixels[last][3] = 254;
     image.pixels[0][3] = 0;
-    assert!(opaque_histogram(&image.pixels, Counts::Wanted).is_none());
+    assert!(opaque_histogram(&image.pixels).is_none());
     let want = map_count(&image.pixels);
     assert_eq!(colour_histogram(&image), want);
     let index = ColourIndex::new(&image);
@@ -206,4 +203,85 @@ fn per_pixel_wants_one_value_per_colour() {
         e.to_string(),
         format!("mapping pixels: {} values for {n} distinct colours", n + 1)
     );
+}
+
+/// The counts before each word as a plain running sum: the oracle for the
+/// parallel count.
+fn running_before(words: &[u64]) -> (Vec<u32>, usize) {
+    let mut before = Vec::with_capacity(words.len());
+    let mut len = 0u32;
+    for w in words {
+        before.push(len);
+        len += w.count_ones();
+    }
+    (before, len as usize)
+}
+
+#[test]
+fn members_before_is_a_running_sum_on_any_number_of_threads() {
+    let mut rng = SeededRng::new(5);
+    // Dense, sparse and empty stretches, so pieces hold very different
+    // numbers of members.
+    let words: Vec<u64> = (0..RGB_WORDS)
+        .map(|w| match (w / WORDS_PER_PIECE) % 3 {
+            0 => rng.next_u64(),
+            1 => rng.next_u64() & rng.next_u64() & rng.next_u64(),
+            _ => 0,
+        })
+        .collect();
+    let want = running_before(&words);
+    for threads in [1, 2, 3] {
+        assert_eq!(
+            with_threads(threads, || members_before(&words)),
+            want,
+            "{threads} threads"
+        );
+    }
+}
+
+/// A value per colour that differs between neighbouring colours and stays
+/// below `bound`.
+fn value_of(colour: [u8; 4], bound: u32) -> u32 {
+    (u32::from_be_bytes(colour) >> 8).wrapping_mul(2_654_435_761) % bound
+}
+
+#[test]
+fn spreading_without_a_list_equals_the_index_on_the_photos() {
+    let chelsea = photo("chelsea");
+    for (name, image) in [
+        ("astronaut", photo("astronaut")),
+        ("chelsea twice", twice(chelsea)),
+    ] {
+        let index = ColourIndex::new(&image);
+        // One byte a value (a palette of up to 256 entries) and four.
+        for bound in [256, 70_000] {
+            let seen = std::sync::Mutex::new(Vec::new());
+            let spread = spread_opaque(&image, bound, |colours, out| {
+                seen.lock().unwrap().push(colours.to_vec());
+                for (slot, &c) in out.iter_mut().zip(colours) {
+                    *slot = value_of(c, bound);
+                }
+            })
+            .expect("an opaque photo");
+            // Every colour handed over once, in the list's order.
+            let mut seen = seen.into_inner().unwrap();
+            seen.sort();
+            let listed: Vec<[u8; 4]> = index.colours().iter().map(|&(c, _)| c).collect();
+            assert_eq!(seen.concat(), listed, "{name}");
+            // The index's own spreading is the oracle.
+            let values: Vec<u32> = listed.iter().map(|&c| value_of(c, bound)).collect();
+            assert_eq!(spread, index.per_pixel(&values).unwrap(), "{name} {bound}");
+        }
+    }
+}
+
+#[test]
+fn spreading_without_a_list_declines_small_or_transparent_images() {
+    let never = |_: &[[u8; 4]], _: &mut [u32]| panic!("no colour should be handed over");
+    let small = photo("chelsea");
+    assert!(spread_opaque(&small, 256, never).is_none());
+    let mut clear = twice(small);
+    let last = clear.pixels.len() - 1;
+    clear.pixels[last][3] = 254;
+    assert!(spread_opaque(&clear, 256, never).is_none());
 }

@@ -50,6 +50,7 @@ mod table;
 mod time;
 
 pub use self::image::{read_image, ImageLimits, RgbaImage};
+pub(crate) use colours::spread_opaque;
 pub use colours::{colour_histogram, ColourIndex};
 pub use frame::{check_columns, frames_of, to_vectors};
 pub use options::{CsvOptions, Missing, TimeChoice};
