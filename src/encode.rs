@@ -293,7 +293,13 @@ impl KdTree {
 
     /// The nearest codeword to `query` (exact; lowest index on ties).
     pub fn nearest(&self, query: &[f32]) -> Nearest {
-        let mut best = Nearest::NONE;
+        // Started where the linear scan starts, so a query no codeword
+        // has a distance below +∞ from (NaN components, or so far out
+        // that every distance overflows) gets its answer, codeword 0.
+        let mut best = Nearest {
+            index: 0,
+            distance_sq: f32::INFINITY,
+        };
         self.search(0, query, &mut best);
         best
     }
@@ -480,16 +486,7 @@ impl Encoder {
     #[inline]
     pub fn nearest(&self, query: &[f32]) -> Nearest {
         match &self.tree {
-            // A query no codeword has a distance below +∞ from (NaN
-            // components, or so far out that every distance overflows):
-            // the tree offers nothing, the linear scan answers codeword 0.
-            Some(t) => match t.nearest(query) {
-                n if n.index == u32::MAX => Nearest {
-                    index: 0,
-                    distance_sq: f32::INFINITY,
-                },
-                n => n,
-            },
+            Some(t) => t.nearest(query),
             None => nearest_linear(&self.codewords, self.dimension, query),
         }
     }
