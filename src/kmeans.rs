@@ -1992,14 +1992,20 @@ mod tests {
         centres
     }
 
+    /// 10 000 distinct 2-D points around 8 separated spots on a 4 × 2
+    /// grid, 9 apart.
+    fn eight_spots() -> VectorSet {
+        let spots: Vec<[f32; 2]> = (0..8)
+            .map(|i| [(i % 4) as f32 * 9.0, (i / 4) as f32 * 9.0])
+            .collect();
+        gaussian_mixture(17, 10_000, &spots)
+    }
+
     #[test]
     fn large_inputs_train_on_a_sample_and_say_so() {
         // 10 000 distinct points around 8 separated spots, k = 8: above
         // 1 024 per codeword, so the restarts see 2 048 draws.
-        let spots: Vec<[f32; 2]> = (0..8)
-            .map(|i| [(i % 4) as f32 * 9.0, (i / 4) as f32 * 9.0])
-            .collect();
-        let v = gaussian_mixture(17, 10_000, &spots);
+        let v = eight_spots();
         let auto = train(&v, &TrainConfig::new(8).check().unwrap()).unwrap();
         assert_eq!(auto.report.sample_draws, Some(8 * SAMPLE_PER_CODEWORD));
         assert!(auto.report.notices.iter().any(|n| n.contains("sample")));
@@ -2036,10 +2042,7 @@ mod tests {
         // 10 000 distinct 2-D points around 8 spots, k = 8: more than the
         // 1 024 stand-in vectors of a quick start, so the restarts run on
         // cell means, then at most QUICK_REFINE_PASSES passes over all.
-        let spots: Vec<[f32; 2]> = (0..8)
-            .map(|i| [(i % 4) as f32 * 9.0, (i / 4) as f32 * 9.0])
-            .collect();
-        let v = gaussian_mixture(17, 10_000, &spots);
+        let v = eight_spots();
         let quick = |k: usize| {
             train(
                 &v,
