@@ -314,11 +314,11 @@ impl Least {
 /// against every panel into `scores` (row after row, each `norms.len()`
 /// long).
 ///
-/// Compiled once for the baseline instruction set and once for AVX2, and
-/// the best the processor offers is chosen at run time (the `multiversion`
-/// crate), so the vectorised loops use 8-wide registers where they exist
-/// without any build flag; the arithmetic is the same in both, and the
-/// recheck makes the answers exact either way. The least scores are found
+/// Compiled for the baseline instruction set, for AVX2 and for AVX2 with
+/// FMA, and the best the processor offers is chosen at run time (the
+/// `multiversion` crate), so the vectorised loops use 8-wide registers
+/// where they exist without any build flag; the recheck makes the answers
+/// exact whichever runs. The least scores are found
 /// afterwards ([`least_two`]): tracking them here would take registers the
 /// sums need.
 #[multiversion(targets("x86_64+avx2+avx+fma", "x86_64+avx2+avx"))]
