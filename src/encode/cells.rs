@@ -264,12 +264,13 @@ impl Cells {
         }
     }
 
-    /// Box of cube `cell`, widened by the margin.
-    fn fine_bounds(&self, cell: [usize; 3]) -> Bounds {
+    /// Box of the `width` × `width` × `width` cubes from cube `first`,
+    /// widened by the margin.
+    fn cube_bounds(&self, first: [usize; 3], width: usize) -> Bounds {
         let low =
-            std::array::from_fn(|j| self.origin[j] + (cell[j] as f64 - MARGIN_CELLS) * self.side);
+            std::array::from_fn(|j| self.origin[j] + (first[j] as f64 - MARGIN_CELLS) * self.side);
         let high = std::array::from_fn(|j| {
-            self.origin[j] + (cell[j] as f64 + 1.0 + MARGIN_CELLS) * self.side
+            self.origin[j] + ((first[j] + width) as f64 + MARGIN_CELLS) * self.side
         });
         (low, high)
     }
@@ -278,16 +279,11 @@ impl Cells {
         let outer = cell.map(|c| c / COARSE);
         let at = outer[0] + self.coarse_counts[0] * (outer[1] + self.coarse_counts[1] * outer[2]);
         let parent = self.coarse[at].get_or_init(|| {
-            let low = std::array::from_fn(|j| {
-                self.origin[j] + ((outer[j] * COARSE) as f64 - MARGIN_CELLS) * self.side
-            });
-            let high = std::array::from_fn(|j| {
-                self.origin[j] + (((outer[j] + 1) * COARSE) as f64 + MARGIN_CELLS) * self.side
-            });
             let all = (0..self.points.len()).map(|i| i as u16);
-            self.candidates(&(low, high), all).into_boxed_slice()
+            let bounds = self.cube_bounds(outer.map(|c| c * COARSE), COARSE);
+            self.candidates(&bounds, all).into_boxed_slice()
         });
-        self.make_node(self.fine_bounds(cell), parent, 0)
+        self.make_node(self.cube_bounds(cell, 1), parent, 0)
     }
 
     fn make_child(&self, split: &Split, child: usize) -> Node {
@@ -342,19 +338,25 @@ impl Cells {
 
     /// The codewords of `from` (in index order) that can be nearest to
     /// some point of `bounds`, in the same order.
-    fn candidates(&self, bounds: &Bounds, from: impl Iterator<Item = u16> + Clone) -> Vec<u16> {
+    fn candidates(&self, bounds: &Bounds, from: impl Iterator<Item = u16>) -> Vec<u16> {
         let (low, high) = bounds;
         // The greatest squared distance from each codeword to the box; the
         // few least of them name the codewords most likely to be nearer
         // than others everywhere in the box.
+        let farthest: Vec<(u16, f64)> = from
+            .map(|i| {
+                let p = &self.points[usize::from(i)];
+                let far = (0..3)
+                    .map(|j| {
+                        let e = (p[j] - low[j]).max(high[j] - p[j]);
+                        e * e
+                    })
+                    .fold(0.0, |sum, e2| sum + e2);
+                (i, far)
+            })
+            .collect();
         let mut rivals = [(f64::INFINITY, 0u16); RIVALS];
-        for i in from.clone() {
-            let p = &self.points[usize::from(i)];
-            let mut far = 0.0;
-            for j in 0..3 {
-                let e = (p[j] - low[j]).max(high[j] - p[j]);
-                far += e * e;
-            }
+        for &(i, far) in &farthest {
             if far < rivals[RIVALS - 1].0 {
                 let mut at = RIVALS - 1;
                 while at > 0 && rivals[at - 1].0 > far {
@@ -365,22 +367,22 @@ impl Cells {
             }
         }
         let threshold = rivals[0].0 * (1.0 + RELATIVE_SLACK) + ABSOLUTE_SLACK;
-        from.filter(|&i| {
-            let p = &self.points[usize::from(i)];
-            let mut near = 0.0;
-            let mut far = 0.0;
-            for j in 0..3 {
-                let e = (low[j] - p[j]).max(p[j] - high[j]).max(0.0);
-                near += e * e;
-                let e = (p[j] - low[j]).max(high[j] - p[j]);
-                far += e * e;
-            }
-            near <= threshold
-                && !rivals
-                    .iter()
-                    .any(|&(rival_far, r)| r != i && self.beats(r, rival_far, i, far, bounds))
-        })
-        .collect()
+        farthest
+            .into_iter()
+            .filter(|&(i, far)| {
+                let p = &self.points[usize::from(i)];
+                let mut near = 0.0;
+                for j in 0..3 {
+                    let e = (low[j] - p[j]).max(p[j] - high[j]).max(0.0);
+                    near += e * e;
+                }
+                near <= threshold
+                    && !rivals
+                        .iter()
+                        .any(|&(rival_far, r)| r != i && self.beats(r, rival_far, i, far, bounds))
+            })
+            .map(|(i, _)| i)
+            .collect()
     }
 
     /// Whether codeword `r` is, with the rounding margins of the module
