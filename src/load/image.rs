@@ -9,7 +9,9 @@
 use std::io::Cursor;
 
 use ::image::error::ImageError;
-use ::image::{ImageFormat, ImageReader};
+use ::image::{DynamicImage, ImageDecoder, ImageFormat, ImageReader};
+
+use rayon::prelude::*;
 
 use crate::error::{Error, ErrorKind, Position, Result};
 
@@ -227,13 +229,27 @@ pub fn read_image(bytes: &[u8], source_name: &str, limits: &ImageLimits) -> Resu
         ));
     }
 
-    let mut decoder = reader(bytes)?;
+    let mut reader = reader(bytes)?;
     let mut image_limits = ::image::Limits::default();
     image_limits.max_image_width = Some(width);
     image_limits.max_image_height = Some(height);
     image_limits.max_alloc = Some(decode_bytes);
-    decoder.limits(image_limits);
-    let decoded = decoder.decode().map_err(|e| decode_error(e, source_name))?;
+    reader.limits(image_limits);
+    let decoder = reader
+        .into_decoder()
+        .map_err(|e| decode_error(e, source_name))?;
+    // For 8-bit RGB (most photos), the pixel list's fresh pages are faulted
+    // in on another thread while this one decodes: the kernel's work for
+    // them is a good part of a large image's load time.
+    let rgb8 = decoder.color_type() == ::image::ColorType::Rgb8;
+    let pixel_count = usize::try_from(pixels).unwrap_or(usize::MAX);
+    let mut list = None;
+    let decoded = rayon::in_place_scope(|s| {
+        if rgb8 {
+            s.spawn(|_| list = Some(opaque_list(pixel_count)));
+        }
+        DynamicImage::from_decoder(decoder).map_err(|e| decode_error(e, source_name))
+    })?;
     if (decoded.width(), decoded.height()) != (width, height) {
         return Err(format_error(
             format!(
@@ -245,17 +261,47 @@ pub fn read_image(bytes: &[u8], source_name: &str, limits: &ImageLimits) -> Resu
             source_name,
         ));
     }
-    // `into_rgba8` keeps the buffer when the image already is 8-bit RGBA and
-    // otherwise converts (16-bit → 8-bit by rounding, grey → R = G = B).
-    let raw = decoded.into_rgba8().into_raw();
-    let mut out = crate::limits::vec_with_capacity(raw.len() / 4, STAGE, "the image")
-        .map_err(|e| e.in_file(source_name))?;
-    out.extend(raw.chunks_exact(4).map(|p| [p[0], p[1], p[2], p[3]]));
     Ok(RgbaImage {
         width,
         height,
-        pixels: out,
+        pixels: rgba_pixels(decoded, list).map_err(|e| e.in_file(source_name))?,
     })
+}
+
+/// `len` opaque black pixels, every page written.
+fn opaque_list(len: usize) -> Result<Vec<[u8; 4]>> {
+    let mut list = crate::limits::vec_with_capacity(len, STAGE, "the image")?;
+    list.resize(len, [0, 0, 0, 255]);
+    Ok(list)
+}
+
+/// The decoded image as 8-bit RGBA pixels. 8-bit RGB and RGBA (nearly every
+/// photo) go straight into the pixel list on all threads; other layouts go
+/// through `into_rgba8` (16-bit → 8-bit by rounding, grey → R = G = B).
+fn rgba_pixels(decoded: DynamicImage, list: Option<Result<Vec<[u8; 4]>>>) -> Result<Vec<[u8; 4]>> {
+    let raw = match decoded {
+        DynamicImage::ImageRgb8(rgb) => {
+            let mut out = list.unwrap_or_else(|| opaque_list(rgb.as_raw().len() / 3))?;
+            out.par_chunks_mut(1 << 14)
+                .zip(rgb.as_raw().par_chunks(3 << 14))
+                .for_each(|(out, raw)| {
+                    for (o, p) in out.iter_mut().zip(raw.chunks_exact(3)) {
+                        *o = [p[0], p[1], p[2], 255];
+                    }
+                });
+            return Ok(out);
+        }
+        DynamicImage::ImageRgba8(rgba) => rgba.into_raw(),
+        other => other.into_rgba8().into_raw(),
+    };
+    // Same bytes, four to a pixel: kept in place when the allocation allows.
+    Ok(
+        bytemuck::allocation::try_cast_vec(raw).unwrap_or_else(|(_, raw)| {
+            raw.par_chunks_exact(4)
+                .map(|p| [p[0], p[1], p[2], p[3]])
+                .collect()
+        }),
+    )
 }
 
 #[cfg(test)]
