@@ -1101,13 +1101,29 @@ fn update(
     let d = vectors.dimension();
     let k = codewords.len() / d;
     let fixed = constraint.fixed_count(d);
+    let mean = |i: usize, c: &mut [f32]| {
+        if p.weights[i] > 0.0 {
+            for (j, x) in c.iter_mut().enumerate() {
+                *x = (p.sums[i * d + j] / p.weights[i]) as f32;
+            }
+            constraint.snap_one(c);
+        }
+    };
+    let free = &mut codewords[fixed * d..];
+    if constraint.snap.is_some() {
+        // Snapping onto a fine grid of display colours costs far more than
+        // the mean; each codeword's depends only on its own sums.
+        free.par_chunks_mut(d)
+            .enumerate()
+            .for_each(|(j, c)| mean(fixed + j, c));
+    } else {
+        free.chunks_exact_mut(d)
+            .enumerate()
+            .for_each(|(j, c)| mean(fixed + j, c));
+    }
     let mut empty = Vec::new();
     for i in fixed..k {
         if p.weights[i] > 0.0 {
-            for c in 0..d {
-                codewords[i * d + c] = (p.sums[i * d + c] / p.weights[i]) as f32;
-            }
-            constraint.snap_one(&mut codewords[i * d..(i + 1) * d]);
             // Two codewords snapped onto one point: the later one is repaired.
             let here = &codewords[i * d..(i + 1) * d];
             if (0..i).any(|j| &codewords[j * d..(j + 1) * d] == here) {
@@ -1553,9 +1569,9 @@ fn lloyd_with(
         codewords[..fixed * d].copy_from_slice(constraint.fixed);
     }
     if constraint.snap.is_some() {
-        for c in codewords[fixed * d..].chunks_exact_mut(d) {
-            constraint.snap_one(c);
-        }
+        codewords[fixed * d..]
+            .par_chunks_mut(d)
+            .for_each(|c| constraint.snap_one(c));
     }
     let mut labels = vec![u32::MAX; vectors.len()];
     let mut history = Vec::new();
