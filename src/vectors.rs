@@ -2,10 +2,18 @@
 //! per-row weights. Everything downstream of loading works on this.
 
 use std::borrow::Cow;
+use std::sync::atomic::{AtomicU64, Ordering};
 
 use rayon::prelude::*;
 
 use crate::error::{Error, ErrorKind, Position, Result};
+
+/// Grids of at most this many cells (a 512 KiB bitmap) count their
+/// occupied cells in a bitmap in [`VectorSet::coarsened`].
+const COUNT_BITMAP_CELLS: u64 = 1 << 22;
+
+/// Rows per piece of work when counting occupied cells on all threads.
+const COUNT_CHUNK_ROWS: usize = 1 << 14;
 
 /// Rows of `dimension` components stored one after another, with optional
 /// non-negative weights (a weight of 3 counts the row three times).
@@ -272,34 +280,22 @@ impl VectorSet {
         let bits = (64 / d).min(21) as u32;
         let levels = (1u64 << bits) as f64;
         let finest = span / (levels - 1.0);
-        // Keys are unique (the row index is part of each), so the parallel
-        // sort's order is the sequential one.
-        let bin = |width: f64, keyed: &mut Vec<(u64, u32)>| -> usize {
-            keyed.clear();
-            keyed.extend(self.rows().enumerate().map(|(i, r)| {
-                let mut key = 0u64;
-                for c in 0..d {
-                    let cell = (((r[c] - lo[c]) as f64) / width).floor() as u64;
-                    key = (key << bits) | cell.min(levels as u64 - 1);
-                }
-                (key, i as u32)
-            }));
-            keyed.par_sort_unstable();
-            1 + keyed.windows(2).filter(|w| w[0].0 != w[1].0).count()
+        let grid = CellGrid {
+            rows: self,
+            lo: &lo,
+            hi: &hi,
+            last: levels as u64 - 1,
         };
-        let mut keyed: Vec<(u64, u32)> = Vec::with_capacity(n);
         // Data rarely fill their bounding box, so the width is searched:
         // the occupied count falls as a power of the width, whose exponent
         // (the data's apparent dimension) is estimated from the tries.
         let mut width = (span / (max_cells as f64).powf(1.0 / d as f64)).max(finest);
         let mut exponent = 2.0f64;
         let mut last: Option<(f64, usize)> = None;
-        // The narrowest fitting width tried, and whether `keyed` holds its
-        // keys (otherwise they are binned again at the end: one buffer).
+        // The narrowest fitting width tried.
         let mut fitting: Option<f64> = None;
-        let mut holds_fitting = false;
         for _ in 0..8 {
-            let occupied = bin(width, &mut keyed);
+            let occupied = grid.occupied(width, bits);
             if let Some((w0, o0)) = last {
                 let ratio = (o0 as f64 / occupied as f64).ln() / (width / w0).ln();
                 if ratio.is_finite() && ratio > 0.5 {
@@ -308,10 +304,8 @@ impl VectorSet {
             }
             last = Some((width, occupied));
             let fits = occupied <= max_cells;
-            holds_fitting = false;
             if fits && fitting.is_none_or(|w| width < w) {
                 fitting = Some(width);
-                holds_fitting = true;
             }
             if fits && (occupied * 2 >= max_cells || width <= finest) {
                 break;
@@ -320,42 +314,195 @@ impl VectorSet {
             let step = aim.powf(-1.0 / exponent).clamp(0.25, 4.0);
             width = (width * step).max(finest);
         }
-        match fitting {
+        let width = match fitting {
+            Some(w) => w,
             // Still too many cells after the tries: widen until it fits.
             None => loop {
                 width *= 2.0;
-                if bin(width, &mut keyed) <= max_cells {
-                    break;
+                if grid.occupied(width, bits) <= max_cells {
+                    break width;
                 }
             },
-            Some(w) if !holds_fitting => {
-                bin(w, &mut keyed);
-            }
-            Some(_) => {}
-        }
-        let mut data = Vec::new();
-        let mut weights = Vec::new();
-        let mut sums = vec![0.0f64; d];
-        for group in keyed.chunk_by(|a, b| a.0 == b.0) {
-            sums.iter_mut().for_each(|s| *s = 0.0);
-            let mut total = 0.0f64;
-            for &(_, i) in group {
-                let w = self.weight(i as usize);
-                total += w;
-                for (s, &x) in sums.iter_mut().zip(self.row(i as usize)) {
-                    *s += w * x as f64;
-                }
-            }
-            if total > 0.0 {
-                data.extend(sums.iter().map(|s| (s / total) as f32));
-                weights.push(total);
-            }
-        }
+        };
+        let (data, weights) = grid.means(width, bits);
         VectorSet {
             dimension: d,
             data,
             weights: Some(weights),
         }
+    }
+}
+
+/// The rows of a set on a regular grid of cubic cells over their bounding
+/// box `lo..=hi`, for [`VectorSet::coarsened`]. A component's cell index is
+/// capped at `last`.
+struct CellGrid<'a> {
+    rows: &'a VectorSet,
+    lo: &'a [f32],
+    hi: &'a [f32],
+    last: u64,
+}
+
+impl CellGrid<'_> {
+    /// Component `c`'s cell on a grid of cells `width` wide: it never falls
+    /// as the value grows, so the highest value has the last cell. The
+    /// quotient is never negative (no value is below `lo`), so the
+    /// conversion's truncation is its floor (and spares a library call on
+    /// processors without a rounding instruction).
+    fn cell(&self, x: f32, c: usize, width: f64) -> u64 {
+        ((((x - self.lo[c]) as f64) / width) as u64).min(self.last)
+    }
+
+    /// Cells per component when the whole grid has at most
+    /// [`COUNT_BITMAP_CELLS`] cells; a row's cell is then numbered in the
+    /// order of its coordinates (mixed radix), the order the packed keys of
+    /// [`CellGrid::sorted`] sort in.
+    fn extent(&self, width: f64) -> Option<Vec<u64>> {
+        let extent: Vec<u64> = (0..self.lo.len())
+            .map(|c| self.cell(self.hi[c], c, width) + 1)
+            .collect();
+        let cells = extent.iter().try_fold(1u64, |p, &m| p.checked_mul(m))?;
+        (cells <= COUNT_BITMAP_CELLS).then_some(extent)
+    }
+
+    fn number(&self, r: &[f32], extent: &[u64], width: f64) -> u64 {
+        (0..r.len()).fold(0u64, |at, c| at * extent[c] + self.cell(r[c], c, width))
+    }
+
+    /// A bitmap of the occupied cells, marked on all threads.
+    fn occupied_cells(&self, extent: &[u64], width: f64) -> Vec<u64> {
+        let cells: u64 = extent.iter().product();
+        let words: Vec<AtomicU64> = (0..cells.div_ceil(64)).map(|_| AtomicU64::new(0)).collect();
+        let d = self.lo.len();
+        self.rows
+            .data
+            .par_chunks(COUNT_CHUNK_ROWS * d)
+            .for_each(|rows| {
+                for r in rows.chunks_exact(d) {
+                    let at = self.number(r, extent, width);
+                    let word = &words[(at / 64) as usize];
+                    let bit = 1u64 << (at % 64);
+                    // Most rows land in a cell already marked: the load
+                    // spares the locked write and keeps the line shared.
+                    if word.load(Ordering::Relaxed) & bit == 0 {
+                        word.fetch_or(bit, Ordering::Relaxed);
+                    }
+                }
+            });
+        words.into_iter().map(AtomicU64::into_inner).collect()
+    }
+
+    /// How many cells of width `width` hold a row.
+    fn occupied(&self, width: f64, bits: u32) -> usize {
+        match self.extent(width) {
+            Some(extent) => self
+                .occupied_cells(&extent, width)
+                .iter()
+                .map(|w| w.count_ones() as usize)
+                .sum(),
+            None => {
+                let keyed = self.sorted(width, bits);
+                1 + keyed.windows(2).filter(|w| w[0].0 != w[1].0).count()
+            }
+        }
+    }
+
+    /// (cell key, row) of every row, sorted: rows of a cell together, in
+    /// row order. Keys are unique (the row index is part of each), so the
+    /// parallel sort's order is the sequential one.
+    fn sorted(&self, width: f64, bits: u32) -> Vec<(u64, u32)> {
+        let d = self.lo.len();
+        let mut keyed: Vec<(u64, u32)> = self
+            .rows
+            .rows()
+            .enumerate()
+            .map(|(i, r)| {
+                let key = (0..d).fold(0u64, |key, c| (key << bits) | self.cell(r[c], c, width));
+                (key, i as u32)
+            })
+            .collect();
+        keyed.par_sort_unstable();
+        keyed
+    }
+
+    /// The weighted mean and total weight of each occupied cell of width
+    /// `width` (cells with positive weight), in cell order. Each cell's
+    /// sums run in row order whichever way the cells are found.
+    fn means(&self, width: f64, bits: u32) -> (Vec<f32>, Vec<f64>) {
+        let d = self.lo.len();
+        let (sums, totals) = match self.extent(width) {
+            Some(extent) => self.sums_by_bitmap(&extent, width),
+            None => self.sums_by_sorting(width, bits),
+        };
+        let mut data = Vec::new();
+        let mut weights = Vec::new();
+        for (cell, &total) in sums.chunks_exact(d).zip(&totals) {
+            if total > 0.0 {
+                data.extend(cell.iter().map(|s| (s / total) as f32));
+                weights.push(total);
+            }
+        }
+        (data, weights)
+    }
+
+    /// Weighted sums and total weight per occupied cell, in cell order:
+    /// each row's slot is its cell's rank among the occupied cells (found
+    /// on all threads), then the sums run in row order.
+    fn sums_by_bitmap(&self, extent: &[u64], width: f64) -> (Vec<f64>, Vec<f64>) {
+        let d = self.lo.len();
+        let occupied = self.occupied_cells(extent, width);
+        let mut before = Vec::with_capacity(occupied.len());
+        let mut count = 0u32;
+        for w in &occupied {
+            before.push(count);
+            count += w.count_ones();
+        }
+        let mut slots = vec![0u32; self.rows.len()];
+        slots
+            .par_chunks_mut(COUNT_CHUNK_ROWS)
+            .zip(self.rows.data.par_chunks(COUNT_CHUNK_ROWS * d))
+            .for_each(|(slots, rows)| {
+                for (slot, r) in slots.iter_mut().zip(rows.chunks_exact(d)) {
+                    let at = self.number(r, extent, width);
+                    let word = (at / 64) as usize;
+                    let below = occupied[word] & ((1u64 << (at % 64)) - 1);
+                    *slot = before[word] + below.count_ones();
+                }
+            });
+        let mut sums = vec![0.0f64; count as usize * d];
+        let mut totals = vec![0.0f64; count as usize];
+        for (i, (r, &slot)) in self.rows.rows().zip(&slots).enumerate() {
+            let slot = slot as usize;
+            let w = self.rows.weight(i);
+            totals[slot] += w;
+            for (s, &x) in sums[slot * d..(slot + 1) * d].iter_mut().zip(r) {
+                *s += w * x as f64;
+            }
+        }
+        (sums, totals)
+    }
+
+    /// [`CellGrid::sums_by_bitmap`] for grids too large for a bitmap: the
+    /// rows sorted by cell, each cell's rows in row order.
+    fn sums_by_sorting(&self, width: f64, bits: u32) -> (Vec<f64>, Vec<f64>) {
+        let d = self.lo.len();
+        let keyed = self.sorted(width, bits);
+        let mut sums = Vec::new();
+        let mut totals = Vec::new();
+        for group in keyed.chunk_by(|a, b| a.0 == b.0) {
+            let mut cell = vec![0.0f64; d];
+            let mut total = 0.0f64;
+            for &(_, i) in group {
+                let w = self.rows.weight(i as usize);
+                total += w;
+                for (s, &x) in cell.iter_mut().zip(self.rows.row(i as usize)) {
+                    *s += w * x as f64;
+                }
+            }
+            sums.extend(cell);
+            totals.push(total);
+        }
+        (sums, totals)
     }
 }
 
@@ -420,6 +567,52 @@ mod tests {
         assert_eq!(d.len(), 3);
         assert_eq!(d.weights().unwrap(), &[2.0, 1.0, 2.0]);
         assert_eq!(v.distinct_count(), 3);
+    }
+
+    #[test]
+    fn cells_found_by_bitmap_and_by_sorting_agree() {
+        // Weighted normal points plus, in the second set, one far outlier
+        // that stretches the bounding box: its grids at narrow widths are
+        // too large for the bitmap, at wide ones they fit.
+        let mut rng = crate::rng::SeededRng::new(9);
+        let mut data: Vec<f32> = (0..3 * 4000).map(|_| rng.normal() as f32).collect();
+        let weights: Vec<f64> = (0..4001).map(|i| 0.5 + (i % 4) as f64).collect();
+        for outlier in [false, true] {
+            if outlier {
+                data.extend([4000.0, -3.0, 2.5]);
+            }
+            let v = VectorSet::new(3, data.clone())
+                .unwrap()
+                .with_weights(weights[..data.len() / 3].to_vec())
+                .unwrap();
+            let (mut lo, mut hi) = (vec![f32::INFINITY; 3], vec![f32::NEG_INFINITY; 3]);
+            for r in v.rows() {
+                for c in 0..3 {
+                    lo[c] = lo[c].min(r[c]);
+                    hi[c] = hi[c].max(r[c]);
+                }
+            }
+            let grid = CellGrid {
+                rows: &v,
+                lo: &lo,
+                hi: &hi,
+                last: (1 << 21) - 1,
+            };
+            let mut dense = 0;
+            for width in [0.001, 0.05, 0.3, 1.0, 7.0, 5000.0] {
+                let sorted = grid.sums_by_sorting(width, 21);
+                let cells = grid.sorted(width, 21);
+                let occupied = 1 + cells.windows(2).filter(|w| w[0].0 != w[1].0).count();
+                assert_eq!(sorted.1.len(), occupied);
+                assert_eq!(grid.occupied(width, 21), occupied, "width {width}");
+                if let Some(extent) = grid.extent(width) {
+                    dense += 1;
+                    // Bit for bit: the same sums in the same order.
+                    assert_eq!(grid.sums_by_bitmap(&extent, width), sorted, "width {width}");
+                }
+            }
+            assert!((1..6).contains(&dense), "{dense} widths on the bitmap");
+        }
     }
 
     #[test]
