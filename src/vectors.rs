@@ -12,6 +12,10 @@ use crate::error::{Error, ErrorKind, Position, Result};
 /// occupied cells in a bitmap in [`VectorSet::coarsened`].
 const COUNT_BITMAP_CELLS: u64 = 1 << 22;
 
+/// Sets of at most this many rows are sorted by a key (16 bytes a row)
+/// when looking for repeats; larger ones by row indices alone (4 bytes).
+const KEYED_SORT_ROWS: usize = 1 << 24;
+
 /// Rows per piece of work when counting occupied cells on all threads.
 const COUNT_CHUNK_ROWS: usize = 1 << 14;
 
@@ -145,8 +149,41 @@ impl VectorSet {
     /// Row indices sorted so that equal rows are adjacent, the lower index
     /// first among equals.
     fn sorted_rows(&self) -> Vec<u32> {
-        let mut order: Vec<u32> = (0..self.len() as u32).collect();
-        order.par_sort_unstable_by(|&x, &y| self.row_bits(x).cmp(self.row_bits(y)).then(x.cmp(&y)));
+        let full = |&x: &u32, &y: &u32| self.row_bits(x).cmp(self.row_bits(y)).then(x.cmp(&y));
+        let n = self.len();
+        // Rows that already come in order (a photo's colours in sRGB).
+        if (1..n as u32).all(|i| self.row_bits(i - 1).lt(self.row_bits(i))) {
+            return (0..n as u32).collect();
+        }
+        if n > KEYED_SORT_ROWS {
+            let mut order: Vec<u32> = (0..n as u32).collect();
+            order.par_sort_unstable_by(full);
+            return order;
+        }
+        // Sorted by a key of the first two components first (a plain
+        // integer sort, several times faster than comparing rows through
+        // the data); only runs of equal keys need the whole rows.
+        let d = self.dimension;
+        let mut keyed: Vec<(u64, u32)> = self
+            .data
+            .par_chunks(d)
+            .enumerate()
+            .map(|(i, r)| {
+                let bits = |c: usize| r.get(c).map_or(0, |v| u64::from((v + 0.0).to_bits()));
+                (bits(0) << 32 | bits(1), i as u32)
+            })
+            .collect();
+        keyed.par_sort_unstable();
+        let mut order: Vec<u32> = keyed.iter().map(|&(_, i)| i).collect();
+        if d > 2 {
+            let mut start = 0;
+            for run in keyed.chunk_by(|a, b| a.0 == b.0) {
+                if run.len() > 1 {
+                    order[start..start + run.len()].sort_unstable_by(full);
+                }
+                start += run.len();
+            }
+        }
         order
     }
 
@@ -567,6 +604,19 @@ mod tests {
         assert_eq!(d.len(), 3);
         assert_eq!(d.weights().unwrap(), &[2.0, 1.0, 2.0]);
         assert_eq!(v.distinct_count(), 3);
+        // Three components: rows that share their first two need the third
+        // to tell them apart; −0 and +0 are one value.
+        let rows = [1.0, 2.0, 5.0, 1.0, 2.0, 3.0, 1.0, 2.0, 5.0];
+        let more = [0.0, -0.0, 1.0, 0.0, 0.0, 1.0, 1.0, 2.0, 3.0];
+        let v = VectorSet::new(3, [rows, more].concat()).unwrap();
+        let d = v.deduplicated();
+        assert_eq!(d.as_flat(), &[1.0, 2.0, 5.0, 1.0, 2.0, 3.0, 0.0, 0.0, 1.0]);
+        assert_eq!(d.weights().unwrap(), &[2.0, 2.0, 2.0]);
+        assert_eq!(v.distinct_count(), 3);
+        // Rows already in order come back as they are.
+        let sorted = VectorSet::new(3, vec![0.0, 0.0, 1.0, 0.0, 0.0, 2.0, 1.0, 0.0, 0.0]).unwrap();
+        assert_eq!(sorted.sorted_rows(), [0, 1, 2]);
+        assert_eq!(sorted.distinct_count(), 3);
     }
 
     #[test]
