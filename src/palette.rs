@@ -951,12 +951,26 @@ pub fn measure_indexed(
         ));
     }
     let alpha = palette.layout.alpha;
-    let mut pairs: Vec<(u64, u64)> = colours
-        .par_iter()
-        .zip(indices)
-        .filter(|(&(c, _), &i)| palette.reserved_for(c) != Some(i))
-        .map(|(&(c, n), &i)| (pair_key(handled(c, alpha), i), n))
-        .collect();
+    let pair = |(&(c, n), &i): (&([u8; 4], u64), &u32)| (pair_key(handled(c, alpha), i), n);
+    let mut pairs: Vec<(u64, u64)> = if palette.layout.transparent_entry {
+        colours
+            .par_iter()
+            .zip(indices)
+            .filter(|(&(c, _), &i)| palette.reserved_for(c) != Some(i))
+            .map(pair)
+            .collect()
+    } else {
+        // No entry is reserved, so every colour is measured: one pair per
+        // colour, written in place (a filtered collect gathers pieces and
+        // copies them).
+        let mut pairs = Vec::new();
+        colours
+            .par_iter()
+            .zip(indices)
+            .map(pair)
+            .collect_into_vec(&mut pairs);
+        pairs
+    };
     add_up_by_key(&mut pairs);
     error_of_pairs(pairs, palette)
 }
