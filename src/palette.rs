@@ -305,10 +305,13 @@ impl PaletteInput {
             pinned: config.keep.clone(),
         };
         let d = layout.dimension();
-        let mut data = Vec::with_capacity(colours.len() * d);
-        for (c, _) in &colours {
-            working(*c, &layout, &mut data);
-        }
+        // Converted on all threads: a CIELAB conversion per colour adds up
+        // for images with hundreds of thousands of colours.
+        let mut data = vec![0.0f32; colours.len() * d];
+        data.par_chunks_mut(d)
+            .zip(colours.par_iter())
+            .with_min_len(CONVERT_PER_TASK)
+            .for_each(|(out, &(c, _))| out.copy_from_slice(&working_point(c, &layout)[..d]));
         let weights: Vec<f64> = colours.iter().map(|(_, n)| *n as f64).collect();
         let vectors = VectorSet::new(d, data)?.with_weights(weights)?;
         let mut fixed = Vec::new();
@@ -324,6 +327,33 @@ impl PaletteInput {
             pixels,
             transparent,
         })
+    }
+
+    /// Pixels nearest each of `codewords` (working space, the visible
+    /// entries): every colour searched once, on all threads, through the
+    /// encoder's cell lists (colours come in ascending order).
+    fn use_counts(&self, codewords: &[f32]) -> Result<Vec<u64>> {
+        let d = self.layout.dimension();
+        let encoder = Encoder::new(codewords, d)?;
+        let counts = self
+            .vectors
+            .as_flat()
+            .par_chunks(CHUNK_ROWS * d)
+            .zip(self.colours.par_chunks(CHUNK_ROWS))
+            .map(|(rows, colours)| {
+                let mut found = vec![Nearest::NONE; colours.len()];
+                encoder.nearest_batch_cached(rows, &mut found);
+                let mut counts = vec![0u64; codewords.len() / d];
+                for (f, &(_, n)) in found.iter().zip(colours) {
+                    counts[f.index as usize] += n;
+                }
+                counts
+            })
+            .reduce_with(|mut a, b| {
+                a.iter_mut().zip(&b).for_each(|(x, y)| *x += y);
+                a
+            });
+        Ok(counts.unwrap_or_else(|| vec![0; codewords.len() / d]))
     }
 
     /// Entries taken by the transparent entry (0 or 1).
@@ -380,12 +410,10 @@ impl PaletteInput {
         let d = self.layout.dimension();
         let space = self.layout.space;
         let k = codewords.len() / d;
-        let encoder = Encoder::new(codewords, d)?;
-        let labels = encoder.encode(&self.vectors)?;
-        let mut use_count = vec![0u64; k];
-        for (l, (_, n)) in labels.iter().zip(&self.colours) {
-            use_count[*l as usize] += n;
-        }
+        let use_count = match order {
+            PaletteOrder::Frequency => self.use_counts(codewords)?,
+            PaletteOrder::Lightness => Vec::new(),
+        };
         let rgb: Vec<[u8; 3]> = codewords
             .chunks_exact(d)
             .map(|c| space.to_rgb8([c[0], c[1], c[2]]))
@@ -990,6 +1018,9 @@ fn add_up_by_key<K: Ord + Copy + Send>(pairs: &mut Vec<(K, u64)>) {
         same
     });
 }
+
+/// Colours per piece of work while converting them to the working space.
+const CONVERT_PER_TASK: usize = 4096;
 
 /// Pairs per piece of work while computing colour differences.
 const PAIRS_PER_TASK: usize = 1024;

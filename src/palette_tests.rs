@@ -143,6 +143,39 @@ fn plain_mapping_is_index_of_every_pixel() {
 }
 
 #[test]
+fn use_counts_equal_one_search_per_colour() {
+    // The counts that order a palette by frequency, against each distinct
+    // colour searched alone (`Encoder::nearest`, lowest index on ties).
+    let composite = AlphaMode::Composite {
+        background: [255, 255, 255],
+    };
+    for (image, alpha) in [
+        (photo("astronaut"), composite),
+        (chelsea_with_alpha(), AlphaMode::Keep),
+    ] {
+        for space in [ColourSpace::Srgb, ColourSpace::Lab] {
+            let input =
+                PaletteInput::new(std::slice::from_ref(&image), &config(space, alpha)).unwrap();
+            let (n, d) = (input.vectors.len(), input.vectors.dimension());
+            let codewords: Vec<f32> = (0..48)
+                .flat_map(|j| input.vectors.row(j * n / 48).to_vec())
+                .collect();
+            let encoder = Encoder::new(&codewords, d).unwrap();
+            let mut want = vec![0u64; 48];
+            for (row, &(_, count)) in input.vectors.rows().zip(&input.colours) {
+                want[encoder.nearest(row).index as usize] += count;
+            }
+            assert_eq!(
+                input.use_counts(&codewords).unwrap(),
+                want,
+                "{space:?} {alpha:?}"
+            );
+            assert_eq!(want.iter().sum::<u64>(), input.pixels - input.transparent);
+        }
+    }
+}
+
+#[test]
 fn measuring_the_distinct_colours_equals_measuring_every_pixel() {
     for (n, (image, palette)) in cases().iter().enumerate() {
         let indices = palette.map_image(image, Dither::None).unwrap();
