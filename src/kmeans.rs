@@ -1061,7 +1061,15 @@ impl Partial {
     #[inline]
     fn add(&mut self, r: &[f32], w: f64, i: usize, codewords: &[f32]) {
         let d = r.len();
-        self.distortion += w * exact_sq(r, &codewords[i * d..(i + 1) * d]);
+        self.add_measured(r, w, i, exact_sq(r, &codewords[i * d..(i + 1) * d]));
+    }
+
+    /// [`Partial::add`] with the vector's exact squared distance to
+    /// codeword `i` already measured (`e`).
+    #[inline]
+    fn add_measured(&mut self, r: &[f32], w: f64, i: usize, e: f64) {
+        let d = r.len();
+        self.distortion += w * e;
         self.weights[i] += w;
         for (s, &x) in self.sums[i * d..(i + 1) * d].iter_mut().zip(r) {
             *s += w * x as f64;
@@ -1200,7 +1208,8 @@ const NEIGHBOUR_LISTS_UP_TO: usize = 1024;
 /// Takes a search's answer for vector `r`: its label, the exact distance to
 /// that codeword as the upper bound, and as the lower bound the runner-up's
 /// distance or `beyond` (a bound on the codewords not examined), whichever
-/// is less. Returns whether the label changed.
+/// is less. Returns whether the label changed and the exact squared
+/// distance to the new codeword.
 fn settle(
     r: &[f32],
     codewords: &[f32],
@@ -1209,14 +1218,15 @@ fn settle(
     label: &mut u32,
     upper: &mut f64,
     lower: &mut f64,
-) -> bool {
+) -> (bool, f64) {
     let d = r.len();
     let i = two.nearest.index as usize;
-    *upper = exact_sq(r, &codewords[i * d..(i + 1) * d]).sqrt();
+    let e = exact_sq(r, &codewords[i * d..(i + 1) * d]);
+    *upper = e.sqrt();
     *lower = (two.second_distance_sq as f64).sqrt().min(beyond);
     let changed = *label != two.nearest.index;
     *label = two.nearest.index;
-    changed
+    (changed, e)
 }
 
 /// For every codeword, the others by increasing distance from it: a
@@ -1426,6 +1436,9 @@ impl BoundedAssign {
             .enumerate()
             .map(|(c, (((lab, up), low), rows))| {
                 let mut p = Partial::empty(k, d);
+                // Each vector's exact squared distance to its codeword when
+                // this pass measured it (NaN otherwise), for the sums.
+                let mut measured = vec![f64::NAN; lab.len()];
                 // Vectors left to one batch search of the chunk: all on the
                 // first pass; later, those whose neighbour list within reach
                 // is too long for a single search to beat the batch kernel.
@@ -1441,7 +1454,8 @@ impl BoundedAssign {
                         if up[j] * (1.0 + rel) + BOUND_FLOOR < bound {
                             continue;
                         }
-                        up[j] = exact_sq(r, &codewords[a * d..(a + 1) * d]).sqrt();
+                        measured[j] = exact_sq(r, &codewords[a * d..(a + 1) * d]);
+                        up[j] = measured[j].sqrt();
                         if up[j] * (1.0 + rel) + BOUND_FLOOR < bound {
                             continue;
                         }
@@ -1452,7 +1466,9 @@ impl BoundedAssign {
                             {
                                 let (two, beyond) = near.nearest_two(r, a, up[j], codewords, rel);
                                 let (l, u, lo) = (&mut lab[j], &mut up[j], &mut low[j]);
-                                p.changed += u64::from(settle(r, codewords, two, beyond, l, u, lo));
+                                let (changed, e) = settle(r, codewords, two, beyond, l, u, lo);
+                                p.changed += u64::from(changed);
+                                measured[j] = e;
                             }
                             _ => pending.push(j),
                         }
@@ -1475,13 +1491,20 @@ impl BoundedAssign {
                     for (&j, t) in pending.iter().zip(two) {
                         let r = &rows[j * d..(j + 1) * d];
                         let (l, u, lo) = (&mut lab[j], &mut up[j], &mut low[j]);
-                        p.changed += u64::from(settle(r, codewords, t, f64::INFINITY, l, u, lo));
+                        let (changed, e) = settle(r, codewords, t, f64::INFINITY, l, u, lo);
+                        p.changed += u64::from(changed);
+                        measured[j] = e;
                     }
                 }
-                // Sums in row order, whatever was searched how.
+                // Sums in row order, whatever was searched how; a distance
+                // measured above is the one `add` would measure.
                 for (j, r) in rows.chunks_exact(d).enumerate() {
                     let w = weights.map_or(1.0, |w| w[c * CHUNK_ROWS + j]);
-                    p.add(r, w, lab[j] as usize, codewords);
+                    if measured[j].is_nan() {
+                        p.add(r, w, lab[j] as usize, codewords);
+                    } else {
+                        p.add_measured(r, w, lab[j] as usize, measured[j]);
+                    }
                 }
                 p
             })
