@@ -634,11 +634,15 @@ impl Encoder {
         out.resize(flat.len() / d, 0);
         out.par_chunks_mut(CHUNK_ROWS)
             .zip(flat.par_chunks(CHUNK_ROWS * d))
-            .for_each(|(labels, rows)| {
-                let mut found = vec![Nearest::NONE; labels.len()];
-                self.nearest_batch(rows, &mut found);
-                for (l, f) in labels.iter_mut().zip(&found) {
-                    *l = f.index;
+            .for_each(|(labels, rows)| match &self.blocked {
+                // Indices only: the kernel skips distances it need not measure.
+                Some(Kernel::Blocked(b)) => b.nearest(&self.codewords, rows, labels),
+                _ => {
+                    let mut found = vec![Nearest::NONE; labels.len()];
+                    self.nearest_batch(rows, &mut found);
+                    for (l, f) in labels.iter_mut().zip(&found) {
+                        *l = f.index;
+                    }
                 }
             });
     }

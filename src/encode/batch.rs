@@ -165,8 +165,10 @@ impl Blocked {
         }
     }
 
-    /// Nearest codeword of every row of `rows` (flat), into `out`.
-    pub(super) fn nearest(&self, codewords: &[f32], rows: &[f32], out: &mut [Nearest]) {
+    /// Nearest codeword of every row of `rows` (flat), into `out`: a
+    /// [`Nearest`] each, or only the index (`u32`), which spares measuring
+    /// the distance when the scores alone settle the answer.
+    pub(super) fn nearest<T: Answer>(&self, codewords: &[f32], rows: &[f32], out: &mut [T]) {
         let d = self.dimension;
         let mut found = Vec::new();
         self.each_row(rows, out, |scores, least, x, length, slot| {
@@ -175,10 +177,7 @@ impl Blocked {
                 // usual case): no need to look through the scores.
                 Some(top) if least.second > top => {
                     let i = lone_least(scores, least);
-                    Nearest {
-                        index: i as u32,
-                        distance_sq: distance_sq(&codewords[i * d..][..d], x),
-                    }
+                    T::of(i as u32, || distance_sq(&codewords[i * d..][..d], x))
                 }
                 Some(top) => {
                     let mut best = Nearest {
@@ -195,9 +194,9 @@ impl Blocked {
                             };
                         }
                     }
-                    best
+                    T::found(best)
                 }
-                None => nearest_linear(codewords, d, x),
+                None => T::found(nearest_linear(codewords, d, x)),
             };
         });
     }
@@ -290,6 +289,40 @@ impl Blocked {
         for r in 0..n {
             t.found[r] = least_two(&t.scores[r * padded..][..padded]);
         }
+    }
+}
+
+/// What [`Blocked::nearest`] writes per row: the whole answer, or only
+/// its index.
+pub(super) trait Answer {
+    /// The answer with codeword `index`, whose squared distance `distance`
+    /// measures when the answer keeps it.
+    fn of(index: u32, distance: impl FnOnce() -> f32) -> Self;
+
+    /// The answer of a whole search.
+    fn found(n: Nearest) -> Self;
+}
+
+impl Answer for Nearest {
+    fn of(index: u32, distance: impl FnOnce() -> f32) -> Self {
+        Nearest {
+            index,
+            distance_sq: distance(),
+        }
+    }
+
+    fn found(n: Nearest) -> Self {
+        n
+    }
+}
+
+impl Answer for u32 {
+    fn of(index: u32, _: impl FnOnce() -> f32) -> Self {
+        index
+    }
+
+    fn found(n: Nearest) -> Self {
+        n.index
     }
 }
 
