@@ -40,7 +40,7 @@ const PARALLEL_SORT_PIXELS: usize = 1 << 16;
 const BITMAP_MIN_PIXELS: usize = 1 << 18;
 
 /// Pixels per piece of work when scanning an image on several threads.
-const CHUNK_PIXELS: usize = 1 << 14;
+pub(super) const CHUNK_PIXELS: usize = 1 << 14;
 
 /// Pixels below which counting does not split across threads: each part
 /// clears and sums a count per distinct colour.

@@ -13,6 +13,7 @@ use ::image::{DynamicImage, ImageDecoder, ImageFormat, ImageReader};
 
 use rayon::prelude::*;
 
+use super::colours::CHUNK_PIXELS;
 use crate::error::{Error, ErrorKind, Position, Result};
 
 const STAGE: &str = "reading image";
@@ -26,9 +27,6 @@ const DECODE_BYTES_PER_PIXEL: u64 = 16;
 
 /// Extra decoder allocation allowed beyond the pixels (tables, row buffers).
 const DECODE_HEADROOM: u64 = 64 << 20;
-
-/// Pixels per piece of work when widening 8-bit RGB to RGBA on all threads.
-const PIXELS_PER_TASK: usize = 1 << 14;
 
 /// Limits that protect memory while reading images.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -285,8 +283,8 @@ fn rgba_pixels(decoded: DynamicImage, list: Option<Result<Vec<[u8; 4]>>>) -> Res
     let raw = match decoded {
         DynamicImage::ImageRgb8(rgb) => {
             let mut out = list.unwrap_or_else(|| opaque_list(rgb.as_raw().len() / 3))?;
-            out.par_chunks_mut(PIXELS_PER_TASK)
-                .zip(rgb.as_raw().par_chunks(3 * PIXELS_PER_TASK))
+            out.par_chunks_mut(CHUNK_PIXELS)
+                .zip(rgb.as_raw().par_chunks(3 * CHUNK_PIXELS))
                 .for_each(|(out, raw)| {
                     for (o, p) in out.iter_mut().zip(raw.chunks_exact(3)) {
                         *o = [p[0], p[1], p[2], 255];
