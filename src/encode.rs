@@ -16,6 +16,7 @@ use rayon::prelude::*;
 use crate::error::{Error, ErrorKind, Result};
 use crate::vectors::VectorSet;
 
+mod anchors;
 mod batch;
 mod cells;
 mod direct;
@@ -83,16 +84,45 @@ fn assert_rows(rows: &[f32], count: usize, d: usize) {
 /// summed per chunk) never depends on the number of threads.
 pub const CHUNK_ROWS: usize = 4096;
 
-/// Squared distance summed in component order, in `f32`.
-#[inline]
+/// Squared distance in `f32`. Below [`SPLIT_FROM`] components the squares
+/// are summed in component order. From there on, component j goes to
+/// partial sum j mod 8 (in order within each) and the eight sums are then
+/// added pairwise, (s₀ + s₄) + (s₂ + s₆) + …: independent sums that run
+/// side by side in vector registers, instead of one chain of additions
+/// each waiting for the last. Either way a sum of non-negative terms, off
+/// by at most γ₍d₋₁₎ of the total (the bound the batch kernel allows for);
+/// every search measures with this one function, so they agree on ties.
+#[inline(always)]
 pub fn distance_sq(a: &[f32], b: &[f32]) -> f32 {
-    let mut s = 0.0f32;
-    for (x, y) in a.iter().zip(b) {
-        let d = x - y;
-        s += d * d;
+    if a.len() < SPLIT_FROM {
+        let mut s = 0.0f32;
+        for (x, y) in a.iter().zip(b) {
+            let d = x - y;
+            s += d * d;
+        }
+        return s;
     }
-    s
+    let mut s = [0.0f32; 8];
+    let (a8, b8) = (a.chunks_exact(8), b.chunks_exact(8));
+    let (ta, tb) = (a8.remainder(), b8.remainder());
+    for (x, y) in a8.zip(b8) {
+        for l in 0..8 {
+            let d = x[l] - y[l];
+            s[l] += d * d;
+        }
+    }
+    for (l, (x, y)) in ta.iter().zip(tb).enumerate() {
+        let d = x - y;
+        s[l] += d * d;
+    }
+    let [s0, s1, s2, s3, s4, s5, s6, s7] = s;
+    ((s0 + s4) + (s2 + s6)) + ((s1 + s5) + (s3 + s7))
 }
+
+/// The dimension from which [`distance_sq`] sums in eight parts. Colours
+/// (3 or 4 components) keep the plain order, which the colour searches
+/// repeat in their own vectorised loops.
+pub const SPLIT_FROM: usize = 8;
 
 /// The slow, obviously right search: every codeword, lowest index on ties.
 /// Used as the oracle in tests.
@@ -480,6 +510,14 @@ impl Encoder {
         } else {
             SearchMethod::KdTree
         }
+    }
+
+    /// Whether batches through the blocked kernel rank each query against
+    /// anchors first and measure only the codewords near the nearest one
+    /// (codebooks of 128 codewords or more); queries whose lists are long
+    /// still go through the whole kernel. The answers are the same.
+    pub fn uses_anchors(&self) -> bool {
+        matches!(self.blocked, Some(Kernel::Blocked(_))) && self.size() >= anchors::ANCHORED_FROM
     }
 
     /// Nearest codeword of one query of length `dimension`.

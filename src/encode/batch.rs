@@ -56,8 +56,11 @@
 //! Queries whose M² could overflow `f32` (or that are not finite) are
 //! measured exactly against every codeword.
 
+use std::sync::OnceLock;
+
 use multiversion::multiversion;
 
+use super::anchors::Anchors;
 use super::{assert_rows, distance_sq, nearest_linear, nearest_two_linear, Nearest, NearestTwo};
 
 /// Codewords per panel: two 8-wide vector registers per query, so a tile
@@ -85,6 +88,9 @@ pub(super) struct Blocked {
     kappa: f64,
     /// The underflow allowance of the module notes.
     floor: f64,
+    /// The shortcut for large codebooks ([`Anchors`]), made when
+    /// [`Blocked::nearest`] is first called (`None`: too few codewords).
+    anchors: OnceLock<Option<Box<Anchors>>>,
 }
 
 /// Working space for one tile of queries.
@@ -153,6 +159,7 @@ impl Blocked {
             radius: radius * (1.0 + 1e-9),
             kappa: kappa * (1.0 + 1e-9),
             floor: (4 * d + 4) as f64 * 2f64.powi(-149),
+            anchors: OnceLock::new(),
         }
     }
 
@@ -167,8 +174,29 @@ impl Blocked {
 
     /// Nearest codeword of every row of `rows` (flat), into `out`: a
     /// [`Nearest`] each, or only the index (`u32`), which spares measuring
-    /// the distance when the scores alone settle the answer.
+    /// the distance when the scores alone settle the answer. Large
+    /// codebooks go through their [`Anchors`] first; the answers are the
+    /// same.
     pub(super) fn nearest<T: Answer>(&self, codewords: &[f32], rows: &[f32], out: &mut [T]) {
+        let anchors = self
+            .anchors
+            .get_or_init(|| Anchors::new(codewords, self.dimension).map(Box::new));
+        match anchors {
+            Some(a) => a.nearest(self, codewords, rows, out),
+            None => self.nearest_all(codewords, rows, out),
+        }
+    }
+
+    /// The anchors [`Blocked::nearest`] uses for `codewords`: for tests.
+    #[cfg(test)]
+    pub(super) fn anchors(&self, codewords: &[f32]) -> Option<&Anchors> {
+        self.anchors
+            .get_or_init(|| Anchors::new(codewords, self.dimension).map(Box::new))
+            .as_deref()
+    }
+
+    /// [`Blocked::nearest`] scoring every codeword.
+    pub(super) fn nearest_all<T: Answer>(&self, codewords: &[f32], rows: &[f32], out: &mut [T]) {
         let d = self.dimension;
         let mut found = Vec::new();
         self.each_row(rows, out, |scores, least, x, length, slot| {
@@ -266,29 +294,38 @@ impl Blocked {
     fn score_tile(&self, rows: &[f32], t: &mut Tile) {
         let d = self.dimension;
         let n = rows.len() / d;
-        // Rows past the end stay 0: their scores are computed and ignored.
-        t.moved.fill(0.0);
-        for (r, x) in rows.chunks_exact(d).enumerate() {
-            for (j, (&v, &m)) in x.iter().zip(&self.centre).enumerate() {
-                t.moved[j * TILE_ROWS + r] = v - m;
-            }
-        }
-        // ‖x'‖ of all rows at once, component by component (the rows'
-        // sums are independent, so they share vector registers).
-        let mut squares = [0.0f64; TILE_ROWS];
-        for x in t.moved.chunks_exact(TILE_ROWS) {
-            for (s, &v) in squares.iter_mut().zip(x) {
-                *s += f64::from(v) * f64::from(v);
-            }
-        }
-        for (length, s) in t.lengths.iter_mut().zip(squares) {
-            *length = s.sqrt();
-        }
+        move_tile(rows, &self.centre, &mut t.moved, &mut t.lengths);
         score_panels(&t.moved, &self.panels, &self.norms, &mut t.scores);
         let padded = self.norms.len();
         for r in 0..n {
             t.found[r] = least_two(&t.scores[r * padded..][..padded]);
         }
+    }
+}
+
+/// Moves up to [`TILE_ROWS`] rows by `centre` into `moved` (component by
+/// component: row r of component j at j·TILE_ROWS + r; rows past the end
+/// stay 0, their scores are computed and ignored) and sets `lengths` to
+/// ‖x'‖ of each, summed in `f64`. Compiled like [`score_panels`].
+#[multiversion(targets("x86_64+avx2+avx"))]
+fn move_tile(rows: &[f32], centre: &[f32], moved: &mut [f32], lengths: &mut [f64; TILE_ROWS]) {
+    let d = centre.len();
+    moved.fill(0.0);
+    for (r, x) in rows.chunks_exact(d).enumerate() {
+        for (j, (&v, &m)) in x.iter().zip(centre).enumerate() {
+            moved[j * TILE_ROWS + r] = v - m;
+        }
+    }
+    // The rows' sums are independent, so they share vector registers.
+    let mut squares = [0.0f64; TILE_ROWS];
+    for x in moved.chunks_exact(TILE_ROWS) {
+        let x: &[f32; TILE_ROWS] = x.try_into().expect("whole tiles");
+        for (s, &v) in squares.iter_mut().zip(x) {
+            *s += f64::from(v) * f64::from(v);
+        }
+    }
+    for (length, s) in lengths.iter_mut().zip(squares) {
+        *length = s.sqrt();
     }
 }
 

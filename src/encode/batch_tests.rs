@@ -313,3 +313,92 @@ fn auto_answers_batches_with_the_tree_only_for_many_colour_codewords() {
     let tree = Encoder::with_method(&cw, 16, SearchMethod::KdTree).unwrap();
     assert_eq!(tree.batch_method(), SearchMethod::KdTree);
 }
+
+/// Rows around the `centres` (values near a centre with spread 1): the shape of logs that fall into a
+/// few regimes, where anchors pay.
+fn grouped(rng: &mut SeededRng, n: usize, d: usize, centres: &[f32]) -> Vec<f32> {
+    let groups = centres.len() / d;
+    let mut v = Vec::with_capacity(n * d);
+    for _ in 0..n {
+        let g = rng.below(groups as u64) as usize;
+        v.extend((0..d).map(|j| centres[g * d + j] + rng.normal() as f32));
+    }
+    v
+}
+
+#[test]
+fn anchored_search_equals_linear_oracle_and_answers_most_queries_itself() {
+    let mut rng = SeededRng::new(75);
+    for &(d, k, groups) in &[(16, 256, 64), (9, 130, 20), (24, 700, 100)] {
+        // Codewords drawn from the data itself, some repeated (ties must
+        // go to the lowest index), and the queries on the integer grid in
+        // one round so that exact ties between distances occur too.
+        let centres: Vec<f32> = (0..groups * d).map(|_| 4.0 * rng.normal() as f32).collect();
+        for grid in [false, true] {
+            let round = |v: Vec<f32>| -> Vec<f32> {
+                if grid {
+                    v.into_iter().map(f32::round).collect()
+                } else {
+                    v
+                }
+            };
+            let mut cw = round(grouped(&mut rng, k, d, &centres));
+            for i in (0..k).step_by(9) {
+                let from = rng.below(k as u64) as usize;
+                let copy: Vec<f32> = cw[from * d..(from + 1) * d].to_vec();
+                cw[i * d..(i + 1) * d].copy_from_slice(&copy);
+            }
+            let n = 3000;
+            let mut q = round(grouped(&mut rng, n, d, &centres));
+            for i in (0..n).step_by(7) {
+                let c = rng.below(k as u64) as usize;
+                q[i * d..(i + 1) * d].copy_from_slice(&cw[c * d..(c + 1) * d]);
+            }
+            let what = format!("d={d} k={k} groups={groups} grid={grid}");
+            check(&cw, d, &q, &what);
+            // The index-only route of encoding answers the same.
+            let encoder = Encoder::with_method(&cw, d, SearchMethod::Scan).unwrap();
+            let mut labels = Vec::new();
+            encoder.encode_flat_into(&q, &mut labels);
+            for (i, x) in q.chunks_exact(d).enumerate() {
+                assert_eq!(
+                    labels[i],
+                    nearest_linear(&cw, d, x).index,
+                    "{what}: row {i}"
+                );
+            }
+            // And the lists, not the fallback, answered most of them.
+            let blocked = Blocked::new(&cw, d);
+            let anchors = blocked.anchors(&cw).expect("k is large enough");
+            let by_lists = anchors.answered_by_lists(&cw, &q);
+            assert!(
+                by_lists * 10 > n * 9,
+                "{what}: lists answered {by_lists} of {n}"
+            );
+        }
+    }
+}
+
+#[test]
+fn small_codebooks_have_no_anchors_and_spread_data_falls_back() {
+    let mut rng = SeededRng::new(76);
+    let d = 32;
+    let small = values(
+        &mut rng,
+        Data::Normal,
+        super::super::anchors::ANCHORED_FROM - 1,
+        d,
+        &[],
+    );
+    assert!(Blocked::new(&small, d).anchors(&small).is_none());
+    // Standard normal codewords and queries in 32 dimensions: every
+    // codeword is about as far as any other, so lists within reach are
+    // long and the full kernel answers; the answers stay the scan's.
+    let k = 300;
+    let cw = values(&mut rng, Data::Normal, k, d, &[]);
+    let q = values(&mut rng, Data::Normal, 2500, d, &[]);
+    let blocked = Blocked::new(&cw, d);
+    let by_lists = blocked.anchors(&cw).unwrap().answered_by_lists(&cw, &q);
+    assert!(by_lists * 10 < q.len() / d, "lists answered {by_lists}");
+    check(&cw, d, &q, "spread data");
+}
