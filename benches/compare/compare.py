@@ -274,7 +274,7 @@ def encode_row(tmp, harness, mode, name, data, codebook, dim, target):
         if mode == "pixels":
             distinct = len(np.unique(data, axis=0))
             reasons.append(f"{distinct} distinct colours searched")
-        reasons.append(f"filling a {4 * n / 1e6:.0f} MB index array anew alone took "
+        reasons.append(f"filling the {4 * n / 1e6:.0f} MB index array anew alone took "
                        f"{ours['fresh_output_seconds'] * 1e3:.1f} ms of "
                        f"{ours['seconds'] * 1e3:.1f} ms")
     if worse:
