@@ -1077,13 +1077,23 @@ impl Partial {
     }
 }
 
-/// Sums per-chunk results in chunk order.
+/// Sums per-chunk results in chunk order; the sums of different codewords
+/// on different threads.
 fn reduce(partials: Vec<Partial>, k: usize, d: usize) -> Partial {
     let mut total = Partial::empty(k, d);
-    for p in partials {
-        for (a, b) in total.sums.iter_mut().zip(&p.sums) {
-            *a += b;
-        }
+    total
+        .sums
+        .par_chunks_mut(REDUCE_SPAN)
+        .enumerate()
+        .for_each(|(c, out)| {
+            for p in &partials {
+                let part = &p.sums[c * REDUCE_SPAN..c * REDUCE_SPAN + out.len()];
+                for (a, b) in out.iter_mut().zip(part) {
+                    *a += b;
+                }
+            }
+        });
+    for p in &partials {
         for (a, b) in total.weights.iter_mut().zip(&p.weights) {
             *a += b;
         }
@@ -1092,6 +1102,9 @@ fn reduce(partials: Vec<Partial>, k: usize, d: usize) -> Partial {
     }
     total
 }
+
+/// Sums that [`reduce`] hands to one thread at a time (8 KiB of `f64`).
+const REDUCE_SPAN: usize = 1024;
 
 /// Moves each codeword to the weighted mean of its vectors, then repairs
 /// empty clusters: each empty codeword (lowest index first) moves onto the
@@ -1149,6 +1162,7 @@ fn update(
         members[l as usize] += 1;
     }
     let err: Vec<f64> = (0..vectors.len())
+        .into_par_iter()
         .map(|i| {
             let l = labels[i] as usize;
             vectors.weight(i) * exact_sq(vectors.row(i), &codewords[l * d..(l + 1) * d])
@@ -1159,9 +1173,10 @@ fn update(
     // during the repair. Regression: a codeword whose first candidate's
     // allowed point was taken used to stay a duplicate, so palettes for
     // coarse displays came out with repeated entries.
-    let mut order: Vec<usize> = (0..vectors.len()).filter(|&i| err[i] > 0.0).collect();
-    order.sort_by(|&a, &b| err[b].total_cmp(&err[a]).then(a.cmp(&b)));
-    let mut candidates = order.into_iter();
+    let order: Vec<usize> = (0..vectors.len()).filter(|&i| err[i] > 0.0).collect();
+    let mut candidates = InOrder::new(order, |&a: &usize, &b: &usize| {
+        err[b].total_cmp(&err[a]).then(a.cmp(&b))
+    });
     for e in empty {
         let placed = candidates.by_ref().find_map(|i| {
             if members[labels[i] as usize] <= 1 {
@@ -1175,6 +1190,56 @@ fn update(
         let Some((i, target)) = placed else { break };
         codewords[e * d..(e + 1) * d].copy_from_slice(&target);
         members[labels[i] as usize] -= 1;
+    }
+}
+
+/// The items of a list in the order of a total order `cmp`, sorted only as
+/// far as they are taken: each batch is picked out of the rest (linear
+/// time) and sorted, and batches double. Taking a few items of a long list
+/// costs about one pass over it instead of a whole sort; taking them all
+/// costs about what sorting does. The sequence is that of a full sort,
+/// since `cmp` leaves no two items equal.
+struct InOrder<T, F> {
+    items: Vec<T>,
+    /// Items before `next` have been yielded; those before `sorted` are in
+    /// order.
+    next: usize,
+    sorted: usize,
+    batch: usize,
+    cmp: F,
+}
+
+impl<T, F: FnMut(&T, &T) -> std::cmp::Ordering> InOrder<T, F> {
+    fn new(items: Vec<T>, cmp: F) -> Self {
+        InOrder {
+            items,
+            next: 0,
+            sorted: 0,
+            batch: 64,
+            cmp,
+        }
+    }
+}
+
+impl<T: Copy, F: FnMut(&T, &T) -> std::cmp::Ordering> Iterator for InOrder<T, F> {
+    type Item = T;
+
+    fn next(&mut self) -> Option<T> {
+        if self.next == self.sorted {
+            let rest = &mut self.items[self.sorted..];
+            if rest.is_empty() {
+                return None;
+            }
+            let take = self.batch.min(rest.len());
+            if take < rest.len() {
+                rest.select_nth_unstable_by(take - 1, &mut self.cmp);
+            }
+            rest[..take].sort_unstable_by(&mut self.cmp);
+            self.sorted += take;
+            self.batch = self.batch.saturating_mul(2);
+        }
+        self.next += 1;
+        Some(self.items[self.next - 1])
     }
 }
 
@@ -2419,6 +2484,69 @@ mod tests {
         assert_eq!(t.codewords, vec![1.0, 2.0, 3.0]);
         assert_eq!(t.report.distortion, 0.0);
         assert_eq!(t.report.notices.len(), 1);
+    }
+
+    #[test]
+    fn in_order_yields_a_full_sort_however_far_it_is_taken() {
+        // Oracle: the standard library's sort of the whole list. Keys repeat
+        // (ties broken by index) and the lengths cross several batches.
+        let mut rng = SeededRng::new(41);
+        for n in [0usize, 1, 63, 64, 65, 200, 1000, 5000] {
+            let keys: Vec<f64> = (0..n).map(|_| rng.below(50) as f64).collect();
+            let cmp = |&a: &usize, &b: &usize| keys[b].total_cmp(&keys[a]).then(a.cmp(&b));
+            let mut want: Vec<usize> = (0..n).collect();
+            want.sort_by(cmp);
+            for take in [0, 1, 10, 64, 65, 300, n] {
+                let got: Vec<usize> = InOrder::new((0..n).collect(), cmp).take(take).collect();
+                assert_eq!(got, want[..take.min(n)], "n {n}, take {take}");
+            }
+        }
+    }
+
+    #[test]
+    fn many_empty_clusters_take_vectors_by_falling_error() {
+        // 300 codewords far from all data are empty after the first pass,
+        // more than one sorted batch of candidates. Oracle: the repair
+        // written with a full sort of the candidates.
+        let mut rng = SeededRng::new(7);
+        let data: Vec<f32> = (0..4000).map(|_| (rng.below(700) as f32) * 0.5).collect();
+        let v = VectorSet::new(1, data).unwrap();
+        let mut init: Vec<f32> = vec![10.0, 100.0, 200.0, 300.0];
+        init.extend((0..300).map(|i| 10_000.0 + i as f32));
+        let k = init.len();
+        let mut labels = vec![u32::MAX; v.len()];
+        let p = assign(&v, &init, &mut labels).unwrap();
+        let mut got = init.clone();
+        update(&v, &mut got, &labels, &p, Constraint::default());
+
+        let mut want = init.clone();
+        for (i, c) in want.iter_mut().enumerate() {
+            if p.weights[i] > 0.0 {
+                *c = (p.sums[i] / p.weights[i]) as f32;
+            }
+        }
+        let err: Vec<f64> = (0..v.len())
+            .map(|i| exact_sq(v.row(i), &want[labels[i] as usize..labels[i] as usize + 1]))
+            .collect();
+        let mut order: Vec<usize> = (0..v.len()).filter(|&i| err[i] > 0.0).collect();
+        order.sort_by(|&a, &b| err[b].total_cmp(&err[a]).then(a.cmp(&b)));
+        let mut members = vec![0usize; k];
+        for &l in &labels {
+            members[l as usize] += 1;
+        }
+        let mut order = order.into_iter();
+        for e in (0..k).filter(|&i| p.weights[i] == 0.0) {
+            let Some(i) = order
+                .by_ref()
+                .find(|&i| members[labels[i] as usize] > 1 && !want.contains(&v.row(i)[0]))
+            else {
+                break;
+            };
+            want[e] = v.row(i)[0];
+            members[labels[i] as usize] -= 1;
+        }
+        assert!(want[4..].iter().all(|&c| c < 10_000.0), "all repaired");
+        assert_eq!(got, want);
     }
 
     #[test]
