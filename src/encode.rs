@@ -20,6 +20,7 @@ mod anchors;
 mod batch;
 mod cells;
 mod direct;
+pub(crate) mod lists;
 
 pub use cells::CellLists;
 
@@ -123,6 +124,16 @@ pub fn distance_sq(a: &[f32], b: &[f32]) -> f32 {
 /// (3 or 4 components) keep the plain order, which the colour searches
 /// repeat in their own vectorised loops.
 pub const SPLIT_FROM: usize = 8;
+
+/// Rows `which` of `rows` (flat, `d` per row) copied out in that order,
+/// for a batch search of the rows a shortcut left unanswered.
+pub(crate) fn gather_rows(rows: &[f32], d: usize, which: &[usize]) -> Vec<f32> {
+    which
+        .iter()
+        .flat_map(|&j| &rows[j * d..(j + 1) * d])
+        .copied()
+        .collect()
+}
 
 /// The slow, obviously right search: every codeword, lowest index on ties.
 /// Used as the oracle in tests.

@@ -12,7 +12,10 @@ use std::borrow::Cow;
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
-use crate::encode::{distance_sq, Encoder, Nearest, NearestTwo, SearchMethod, CHUNK_ROWS};
+use crate::encode::lists::{reach, rounding_margin, NeighbourLists, BOUND_FLOOR};
+use crate::encode::{
+    distance_sq, gather_rows, Encoder, Nearest, NearestTwo, SearchMethod, CHUNK_ROWS,
+};
 use crate::error::{Error, ErrorKind, Result};
 // Squared distance in f64 from explicit differences: the reported figure.
 use crate::metrics::squared_error as exact_sq;
@@ -1294,71 +1297,49 @@ fn settle(
     (changed, e)
 }
 
-/// For every codeword, the others by increasing distance from it: a
-/// vector at distance u from codeword a can only be nearer to codewords
-/// within 2u of a (triangle inequality), usually a handful.
-struct Neighbours {
-    /// Row a: (distance from a, index) of every other codeword, ascending.
-    rows: Vec<(f64, u32)>,
-    k: usize,
+/// The exact distance between codewords `a` and `j`.
+fn gap(codewords: &[f32], d: usize, a: usize, j: usize) -> f64 {
+    exact_sq(
+        &codewords[a * d..(a + 1) * d],
+        &codewords[j * d..(j + 1) * d],
+    )
+    .sqrt()
 }
 
-/// The order of a neighbour row: by distance, then index (a total order,
-/// so every sort of a row gives the same result).
-fn by_gap(x: &(f64, u32), y: &(f64, u32)) -> std::cmp::Ordering {
-    x.0.total_cmp(&y.0).then(x.1.cmp(&y.1))
+/// For every codeword, the others by increasing distance from it
+/// ([`NeighbourLists`]): a vector at distance u from codeword a can only be
+/// nearer to codewords within 2u of a (triangle inequality), usually a
+/// handful. The searches and look-ups Lloyd passes make of them.
+struct Neighbours {
+    lists: NeighbourLists,
+    k: usize,
 }
 
 impl Neighbours {
     fn new(codewords: &[f32], d: usize) -> Self {
         let k = codewords.len() / d;
-        Self::by(k, |a, j| {
-            exact_sq(
-                &codewords[a * d..(a + 1) * d],
-                &codewords[j * d..(j + 1) * d],
-            )
-            .sqrt()
-        })
+        Neighbours {
+            lists: NeighbourLists::every(k, |a, j| gap(codewords, d, a, j)),
+            k,
+        }
     }
 
     /// The table for `k` points whose pairwise distances `gap` gives.
     fn by(k: usize, gap: impl Fn(usize, usize) -> f64 + Sync) -> Self {
-        let mut rows = vec![(0.0f64, 0u32); k * k.saturating_sub(1)];
-        if k > 1 {
-            rows.par_chunks_mut(k - 1).enumerate().for_each(|(a, row)| {
-                let others = (0..k).filter(|&j| j != a);
-                for (slot, j) in row.iter_mut().zip(others) {
-                    *slot = (gap(a, j), j as u32);
-                }
-                row.sort_unstable_by(by_gap);
-            });
+        Neighbours {
+            lists: NeighbourLists::every(k, gap),
+            k,
         }
-        Neighbours { rows, k }
     }
 
-    /// The same lists for moved codewords: every distance measured again,
-    /// each row re-sorted from its last order (nearly sorted when the
-    /// codewords moved little, which an adaptive sort takes in about one
-    /// sweep). Equal to [`Neighbours::new`]: the order is total.
+    /// The same lists for moved codewords (equal to [`Neighbours::new`]),
+    /// re-sorted from their last order.
     fn refresh(&mut self, codewords: &[f32], d: usize) {
-        let k = self.k;
-        if k > 1 {
-            self.rows
-                .par_chunks_mut(k - 1)
-                .enumerate()
-                .for_each(|(a, row)| {
-                    let ca = &codewords[a * d..(a + 1) * d];
-                    for (gap, j) in row.iter_mut() {
-                        let j = *j as usize;
-                        *gap = exact_sq(ca, &codewords[j * d..(j + 1) * d]).sqrt();
-                    }
-                    row.sort_by(by_gap);
-                });
-        }
+        self.lists.refresh(|a, j| gap(codewords, d, a, j));
     }
 
     fn row(&self, a: usize) -> &[(f64, u32)] {
-        &self.rows[a * (self.k - 1)..(a + 1) * (self.k - 1)]
+        self.lists.row(a)
     }
 
     /// Whether [`Neighbours::nearest_two`] would measure more than `count`
@@ -1366,12 +1347,7 @@ impl Neighbours {
     /// `a` and every other one within reach, so whether the `count`-th
     /// nearest other one is within reach (one look-up, no search).
     fn measures_more_than(&self, a: usize, u: f64, rel: f64, count: usize) -> bool {
-        let reach = 2.0 * u * (1.0 + rel) + BOUND_FLOOR;
-        count == 0
-            || self
-                .row(a)
-                .get(count - 1)
-                .is_some_and(|&(gap, _)| gap <= reach)
+        count == 0 || self.lists.more_within(a, reach(u, rel), count - 1)
     }
 
     /// Half the distance from codeword a to the nearest other one.
@@ -1395,7 +1371,7 @@ impl Neighbours {
     ) -> (NearestTwo, f64) {
         let d = x.len();
         let mut two = NearestTwo::of(a as u32, distance_sq(x, &codewords[a * d..(a + 1) * d]));
-        let reach = 2.0 * u * (1.0 + rel) + BOUND_FLOOR;
+        let reach = reach(u, rel);
         let mut beyond = f64::INFINITY;
         for &(gap, j) in self.row(a) {
             if gap > reach {
@@ -1416,9 +1392,6 @@ impl Neighbours {
 /// Searches of longer lists go to the batch; the answers are the same.
 const BATCH_GAIN: usize = 4;
 
-/// Absolute slack for distances so small that `f32` squares underflow.
-const BOUND_FLOOR: f64 = 1e-15;
-
 impl BoundedAssign {
     fn new(n: usize) -> Self {
         BoundedAssign {
@@ -1437,9 +1410,7 @@ impl BoundedAssign {
     ) -> Result<Partial> {
         let d = vectors.dimension();
         let k = codewords.len() / d;
-        // Relative error of an f32 squared distance over d components,
-        // with a wide margin; applied to distances it is wider still.
-        let rel = 4.0 * (d as f64 + 2.0) * f32::EPSILON as f64;
+        let rel = rounding_margin(d);
         let first = self.last.len() != codewords.len();
         let (moved, near, half_gap) = if first {
             (vec![0.0; k], None, Vec::new())
@@ -1544,11 +1515,7 @@ impl BoundedAssign {
                     let queries = if pending.len() == lab.len() {
                         rows
                     } else {
-                        gathered = pending
-                            .iter()
-                            .flat_map(|&j| &rows[j * d..(j + 1) * d])
-                            .copied()
-                            .collect();
+                        gathered = gather_rows(rows, d, &pending);
                         &gathered
                     };
                     let mut two = vec![NearestTwo::NONE; pending.len()];
@@ -2217,8 +2184,8 @@ mod tests {
                 }
                 lists.refresh(&cw, d);
                 assert_eq!(
-                    lists.rows,
-                    Neighbours::new(&cw, d).rows,
+                    lists.lists,
+                    Neighbours::new(&cw, d).lists,
                     "d={d} k={k} step={step}"
                 );
             }

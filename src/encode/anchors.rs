@@ -25,7 +25,8 @@
 use multiversion::multiversion;
 
 use super::batch::{Answer, Blocked};
-use super::{distance_sq, Nearest};
+use super::lists::{reach, rounding_margin, NeighbourLists};
+use super::{distance_sq, gather_rows, Nearest};
 use crate::metrics::squared_error;
 
 /// Codebooks from this size on use anchors.
@@ -35,8 +36,6 @@ const MAX_ANCHORS: usize = 256;
 /// Queries per piece of a batch; after each piece, the batch goes on with
 /// anchors only while most of the piece's queries needed no full kernel.
 const PIECE: usize = 1024;
-/// Absolute slack for distances so small that `f32` squares underflow.
-const FLOOR: f64 = 1e-15;
 
 /// The anchors of a codebook and each one's list of codewords by distance.
 #[derive(Debug, Clone)]
@@ -45,11 +44,8 @@ pub(super) struct Anchors {
     kernel: Blocked,
     /// The anchors' codewords, flat.
     codewords: Vec<f32>,
-    /// The codebook index of each anchor.
-    ids: Vec<u32>,
-    /// Row a: (exact distance from anchor a, index) of every codeword but
-    /// the anchor itself, ascending by distance, then index.
-    lists: Vec<(f64, u32)>,
+    /// Per anchor, every other codeword by exact distance from it.
+    lists: NeighbourLists,
     /// Codebook size.
     size: usize,
     /// Relative margin on the reach, for `f32` rounding.
@@ -72,38 +68,26 @@ impl Anchors {
         // Farthest-point order from codeword 0: each next anchor is the
         // codeword farthest from those chosen (the first such on ties).
         let mut ids = vec![0u32];
-        let mut reach: Vec<f64> = (0..k).map(|j| squared_error(cw(0), cw(j))).collect();
+        let mut to_chosen: Vec<f64> = (0..k).map(|j| squared_error(cw(0), cw(j))).collect();
         while ids.len() < m {
             let mut next = 0;
-            for (j, &r) in reach.iter().enumerate() {
-                if r > reach[next] {
+            for (j, &r) in to_chosen.iter().enumerate() {
+                if r > to_chosen[next] {
                     next = j;
                 }
             }
             ids.push(next as u32);
-            for (j, r) in reach.iter_mut().enumerate() {
+            for (j, r) in to_chosen.iter_mut().enumerate() {
                 *r = r.min(squared_error(cw(next), cw(j)));
             }
-        }
-        let mut lists = Vec::with_capacity(m * (k - 1));
-        for &a in &ids {
-            let start = lists.len();
-            let a = a as usize;
-            lists.extend(
-                (0..k)
-                    .filter(|&j| j != a)
-                    .map(|j| (squared_error(cw(a), cw(j)).sqrt(), j as u32)),
-            );
-            lists[start..].sort_unstable_by(|x, y| x.0.total_cmp(&y.0).then(x.1.cmp(&y.1)));
         }
         let anchor_words: Vec<f32> = ids.iter().flat_map(|&a| cw(a as usize)).copied().collect();
         Some(Anchors {
             kernel: Blocked::new(&anchor_words, d),
             codewords: anchor_words,
-            ids,
-            lists,
+            lists: NeighbourLists::around(k, ids, |a, j| squared_error(cw(a), cw(j)).sqrt()),
             size: k,
-            rel: 4.0 * (d as f64 + 2.0) * f64::from(f32::EPSILON),
+            rel: rounding_margin(d),
             limit: k / 8,
         })
     }
@@ -148,11 +132,7 @@ impl Anchors {
         if pending.is_empty() {
             return;
         }
-        let gathered: Vec<f32> = pending
-            .iter()
-            .flat_map(|&j| &rows[j * d..(j + 1) * d])
-            .copied()
-            .collect();
+        let gathered = gather_rows(rows, d, &pending);
         let mut answers: Vec<T> = (0..pending.len())
             .map(|_| T::found(Nearest::NONE))
             .collect();
@@ -173,16 +153,15 @@ impl Anchors {
             return None;
         }
         let a = anchor.index as usize;
-        let reach = 2.0 * f64::from(e).sqrt() * (1.0 + self.rel) + FLOOR;
-        let list = &self.lists[a * (self.size - 1)..(a + 1) * (self.size - 1)];
-        if list.get(self.limit).is_some_and(|&(gap, _)| gap <= reach) {
+        let reach = reach(f64::from(e).sqrt(), self.rel);
+        if self.lists.more_within(a, reach, self.limit) {
             return None;
         }
         let mut best = Nearest {
-            index: self.ids[a],
+            index: self.lists.centre(a),
             distance_sq: e,
         };
-        for &(gap, j) in list {
+        for &(gap, j) in self.lists.row(a) {
             if gap > reach {
                 break;
             }
