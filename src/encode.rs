@@ -528,7 +528,7 @@ impl Encoder {
     /// (codebooks of 128 codewords or more); queries whose lists are long
     /// still go through the whole kernel. The answers are the same.
     pub fn uses_anchors(&self) -> bool {
-        matches!(self.blocked, Some(Kernel::Blocked(_))) && self.size() >= anchors::ANCHORED_FROM
+        matches!(self.blocked, Some(Kernel::Blocked(_))) && anchors::worth_it(self.size())
     }
 
     /// Nearest codeword of one query of length `dimension`.

@@ -31,6 +31,11 @@ use crate::metrics::squared_error;
 
 /// Codebooks from this size on use anchors.
 pub(super) const ANCHORED_FROM: usize = 128;
+
+/// Whether a codebook of `k` codewords gets anchors.
+pub(super) fn worth_it(k: usize) -> bool {
+    k >= ANCHORED_FROM
+}
 /// At most this many anchors (their lists hold k entries each).
 const MAX_ANCHORS: usize = 256;
 /// Queries per piece of a batch; after each piece, the batch goes on with
@@ -60,7 +65,7 @@ impl Anchors {
     /// for codebooks too small to gain from them.
     pub(super) fn new(codewords: &[f32], d: usize) -> Option<Anchors> {
         let k = codewords.len() / d;
-        if k < ANCHORED_FROM {
+        if !worth_it(k) {
             return None;
         }
         let m = (k / 4).min(MAX_ANCHORS);
