@@ -1312,24 +1312,23 @@ fn gap(codewords: &[f32], d: usize, a: usize, j: usize) -> f64 {
 /// handful. The searches and look-ups Lloyd passes make of them.
 struct Neighbours {
     lists: NeighbourLists,
-    k: usize,
 }
 
 impl Neighbours {
     fn new(codewords: &[f32], d: usize) -> Self {
-        let k = codewords.len() / d;
-        Neighbours {
-            lists: NeighbourLists::every(k, |a, j| gap(codewords, d, a, j)),
-            k,
-        }
+        Self::by(codewords.len() / d, |a, j| gap(codewords, d, a, j))
     }
 
     /// The table for `k` points whose pairwise distances `gap` gives.
     fn by(k: usize, gap: impl Fn(usize, usize) -> f64 + Sync) -> Self {
         Neighbours {
             lists: NeighbourLists::every(k, gap),
-            k,
         }
+    }
+
+    /// How many codewords the table is for.
+    fn size(&self) -> usize {
+        self.lists.len()
     }
 
     /// The same lists for moved codewords (equal to [`Neighbours::new`]),
@@ -1427,7 +1426,7 @@ impl BoundedAssign {
                 .collect();
             match &mut self.near {
                 _ if k > NEIGHBOUR_LISTS_UP_TO => self.near = None,
-                Some(n) if n.k == k => n.refresh(codewords, d),
+                Some(n) if n.size() == k => n.refresh(codewords, d),
                 _ => self.near = Some(Neighbours::new(codewords, d)),
             }
             let near = self.near.as_ref();

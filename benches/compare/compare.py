@@ -299,10 +299,11 @@ def wider_vectors_note():
         flags = Path("/proc/cpuinfo").read_text()
     except OSError:
         return ""
-    if " avx512f" not in flags or "AVX512" not in faiss.get_compile_options():
+    options = faiss.get_compile_options().strip()
+    if " avx512f" not in flags or "AVX512" not in options:
         return ""
-    return ("this CPU has AVX-512 and faiss is built to use it "
-            f"({faiss.get_compile_options().strip()}); vqforge's distance kernel is 8-wide AVX2")
+    return (f"this CPU has AVX-512 and faiss is built to use it ({options}); "
+            "vqforge's distance kernel is 8-wide AVX2")
 
 
 def records_rows(tmp, harness):

@@ -3,19 +3,8 @@
 //! over the codebook), and then measured only against the codewords near
 //! its nearest anchor.
 //!
-//! # Why the answer is the full scan's
-//!
-//! Let a be any anchor and u = √E(x, a), with E = [`distance_sq`] as the
-//! scan measures it. The scan's answer m has E(x, m) ≤ E(x, a), so its true
-//! distance is at most u, up to `f32` rounding of the two measures (a
-//! relative error of a few (d + 2)·2⁻²⁴ each). By the triangle inequality
-//! ‖a − m‖ ≤ ‖a − x‖ + ‖x − m‖ ≤ 2u, widened by the margin `rel` (far above
-//! that rounding) and an absolute floor for squares that underflow. Every
-//! codeword that near a — a prefix of a's list, sorted by exact distance
-//! from a — is measured with [`distance_sq`] and the least wins, lowest
-//! index on ties: the scan's rule over a set that holds its answer and
-//! every codeword tied with it. The nearest anchor gives the shortest
-//! list, but any anchor would give the same answer.
+//! The search of a list is the scan's answer for any anchor, by the
+//! argument in [`super::lists`]; the nearest anchor gives the shortest list.
 //!
 //! A query whose list within reach is long (spread-out data, where the
 //! nearest anchor is barely nearer than the rest), or whose distance is

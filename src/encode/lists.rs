@@ -1,13 +1,19 @@
 //! Codewords by distance from chosen codewords (the centres), and the
 //! reach that makes a search of such a list exact.
 //!
-//! A vector x at distance u from centre a can only be nearer to codewords
-//! within 2u of a (triangle inequality). A prefix of a's list, sorted by
-//! exact distance from a, holds them all; measured with the same
-//! [`super::distance_sq`] as the full scan, its least (lowest index on
-//! ties) is the scan's answer. [`reach`] widens 2u by the margin `rel` of
-//! [`rounding_margin`], far above the `f32` rounding of the measures the
-//! scan compares, and by [`BOUND_FLOOR`] for squares that underflow.
+//! # Why a search of a list is the full scan's
+//!
+//! Let a be any centre and u = √E(x, a), with E = [`super::distance_sq`]
+//! as the scan measures it. The scan's answer m has E(x, m) ≤ E(x, a), so
+//! its true distance is at most u, up to `f32` rounding of the two
+//! measures (a relative error of a few (d + 2)·2⁻²⁴ each). By the triangle
+//! inequality ‖a − m‖ ≤ ‖a − x‖ + ‖x − m‖ ≤ 2u; [`reach`] widens that by
+//! the margin of [`rounding_margin`] (far above that rounding) and by
+//! [`BOUND_FLOOR`] for squares that underflow. Every codeword that near a
+//! — a prefix of a's list, sorted by exact distance from a — is measured
+//! with [`super::distance_sq`] and the least wins, lowest index on ties:
+//! the scan's rule over a set that holds its answer and every codeword
+//! tied with it.
 //!
 //! The anchored search of the encoder keeps lists for a few spread-out
 //! codewords; Lloyd passes keep them for every codeword.
@@ -83,10 +89,10 @@ impl NeighbourLists {
     }
 
     /// The same lists after the codewords moved: every distance measured
-    /// again by `gap(centre, j)`, each list
-    /// re-sorted from its last order (nearly sorted when the codewords
-    /// moved little, which an adaptive sort takes in about one sweep).
-    /// Equal to new lists: the order is total.
+    /// again by `gap(centre, j)`, each list re-sorted from its last order
+    /// (nearly sorted when the codewords moved little, which an adaptive
+    /// sort takes in about one sweep). Equal to new lists: the order is
+    /// total.
     pub(crate) fn refresh(&mut self, gap: impl Fn(usize, usize) -> f64 + Sync) {
         if self.width > 0 {
             self.rows
@@ -99,6 +105,11 @@ impl NeighbourLists {
                     row.sort_by(by_gap);
                 });
         }
+    }
+
+    /// How many lists (centres) there are.
+    pub(crate) fn len(&self) -> usize {
+        self.centres.len()
     }
 
     /// The codebook index of list r's centre.
